@@ -1,0 +1,130 @@
+// IndexedDB on the phone. Three object stores:
+//   outbox    records saved here that the server has not confirmed (key: id)
+//   captures  every record this phone knows, its own and pulled (key: id)
+//   meta      small settings: device ID, study, sync cursor, last sync time
+// Every save is one IndexedDB transaction that writes the record to both
+// captures and outbox, and resolves only when the transaction completes,
+// so a record the crew saw as "saved" survives a closed tab or a dead
+// battery.
+
+const NAME = "tagtally";
+const VERSION = 1;
+
+let dbPromise = null;
+
+export function open() {
+  if (dbPromise) return dbPromise;
+  dbPromise = new Promise((resolve, reject) => {
+    const req = indexedDB.open(NAME, VERSION);
+    req.onupgradeneeded = () => {
+      const db = req.result;
+      if (!db.objectStoreNames.contains("outbox")) db.createObjectStore("outbox", { keyPath: "id" });
+      if (!db.objectStoreNames.contains("captures")) {
+        const s = db.createObjectStore("captures", { keyPath: "id" });
+        s.createIndex("study", "study_id");
+      }
+      if (!db.objectStoreNames.contains("meta")) db.createObjectStore("meta");
+    };
+    req.onsuccess = () => resolve(req.result);
+    req.onerror = () => reject(req.error);
+    req.onblocked = () => reject(new Error("the app is open in another tab with an older version; close it"));
+  });
+  return dbPromise;
+}
+
+function done(tx) {
+  return new Promise((resolve, reject) => {
+    tx.oncomplete = () => resolve();
+    tx.onerror = () => reject(tx.error);
+    tx.onabort = () => reject(tx.error || new Error("storage transaction aborted"));
+  });
+}
+
+function result(req) {
+  return new Promise((resolve, reject) => {
+    req.onsuccess = () => resolve(req.result);
+    req.onerror = () => reject(req.error);
+  });
+}
+
+export async function getMeta(key) {
+  const db = await open();
+  return result(db.transaction("meta").objectStore("meta").get(key));
+}
+
+export async function setMeta(key, value) {
+  const db = await open();
+  const tx = db.transaction("meta", "readwrite");
+  tx.objectStore("meta").put(value, key);
+  return done(tx);
+}
+
+// saveRecord writes the capture and its outbox entry in one transaction.
+export async function saveRecord(capture, entry) {
+  const db = await open();
+  const tx = db.transaction(["captures", "outbox"], "readwrite");
+  tx.objectStore("captures").put(capture);
+  tx.objectStore("outbox").put(entry);
+  return done(tx);
+}
+
+export async function getOutboxEntry(id) {
+  const db = await open();
+  return result(db.transaction("outbox").objectStore("outbox").get(id));
+}
+
+export async function allOutbox() {
+  const db = await open();
+  return result(db.transaction("outbox").objectStore("outbox").getAll());
+}
+
+export async function getCapture(id) {
+  const db = await open();
+  return result(db.transaction("captures").objectStore("captures").get(id));
+}
+
+export async function capturesForStudy(studyID) {
+  const db = await open();
+  const idx = db.transaction("captures").objectStore("captures").index("study");
+  return result(idx.getAll(IDBKeyRange.only(studyID)));
+}
+
+// applySettled removes confirmed outbox entries, keeps the others updated,
+// and records the server's revision IDs on the local copies, in one
+// transaction.
+export async function applySettled(confirmIDs, keepEntries, revisions) {
+  const db = await open();
+  const tx = db.transaction(["captures", "outbox"], "readwrite");
+  const out = tx.objectStore("outbox");
+  const caps = tx.objectStore("captures");
+  for (const id of confirmIDs) out.delete(id);
+  for (const e of keepEntries) out.put(e);
+  for (const [id, rev] of revisions) {
+    const req = caps.get(id);
+    req.onsuccess = () => {
+      const c = req.result;
+      if (c) {
+        c.revision = { ...(c.revision || {}), id: rev };
+        caps.put(c);
+      }
+    };
+  }
+  return done(tx);
+}
+
+// putPulled stores records pulled from the server, except those with a
+// newer local version still waiting in the outbox: the crew's unsent edit
+// wins on the phone until the server has it.
+export async function putPulled(records) {
+  const db = await open();
+  const tx = db.transaction(["captures", "outbox"], "readwrite");
+  const out = tx.objectStore("outbox");
+  const caps = tx.objectStore("captures");
+  for (const r of records) {
+    const req = out.get(r.id);
+    req.onsuccess = () => {
+      if (!req.result) caps.put(r);
+    };
+  }
+  return done(tx);
+}
