@@ -52,6 +52,7 @@ const (
 //
 //	r_E = 1 / (2 sqrt(ρ)),  SE = 0.26136 / sqrt(n ρ),  ρ = n / A
 //
+// (0.26136 is sqrt((4-π)/(4π)) rounded; the exact value is used)
 // and with Donnelly's (1978) correction for a region of area A and
 // perimeter P (derived by simulation for rectangles, used for other
 // compact polygons; Krebs 1999, ch. 6)
@@ -116,7 +117,7 @@ func ClarkEvans(points []Point, region Region, donnelly bool) (*NearestNeighbour
 		res.EdgeCorrection = EdgeNone
 		rho := nf / a
 		res.Expected = 0.5 / math.Sqrt(rho)
-		res.SE = 0.26136 / math.Sqrt(nf*rho)
+		res.SE = math.Sqrt((4-math.Pi)/(4*math.Pi)) / math.Sqrt(nf*rho)
 		res.Warnings = append(res.Warnings, "No edge correction: unless the points have neighbours mapped beyond the region's edge, R is biased upward (toward uniform).")
 	}
 	res.R = ra / res.Expected
