@@ -141,7 +141,8 @@ type JackknifeResult struct {
 	// Selected is the order chosen by the sequential test.
 	Selected int `json:"selected"`
 	// Interpolation is the weight x in N = (1-x) N_m + x N_{m+1} of the
-	// interpolated estimator; 0 when no interpolation was made.
+	// interpolated estimate (parameter "N[interpolated]"); 0 when the
+	// highest order was selected.
 	Interpolation float64 `json:"interpolation"`
 }
 
@@ -162,12 +163,14 @@ type JackknifeResult struct {
 // and select the first order m whose test is not significant at the 5%
 // level (the highest order if all are).
 //
-// Interpolation: the estimate reported is N = (1-x) N_m + x N_{m+1} with
-// x = |z_m| / 1.96, which moves toward the next order as its test nears
-// significance, with coefficients interpolated the same way for the
-// variance. Burnham & Overton (1979) interpolate between adjacent orders
-// using the test's significance level; the exact weighting rule here is
-// this package's reading of that idea, not checked against the paper.
+// The estimate reported in N is N_m. An interpolated estimate
+// N = (1-x) N_m + x N_{m+1} with x = |z_m| / 1.96, which moves toward the
+// next order as its test nears significance (coefficients interpolated the
+// same way for the variance), is reported as the parameter
+// "N[interpolated]". Burnham & Overton (1979) interpolate between adjacent
+// orders using the test's significance level; the exact weighting rule
+// here is this package's reading of that idea, not checked against the
+// paper, which is why it is not the headline estimate.
 //
 // The interval is normal with its lower limit raised to S, the number of
 // animals caught. No recaptures (every animal caught once) gives an error
@@ -227,15 +230,20 @@ func Jackknife(f Frequencies) (*JackknifeResult, error) {
 			break
 		}
 	}
+	n, v := jkLinearEstimate(coef[selected], f)
+	// The interpolated estimate between the selected order and the next.
 	x := 0.0
-	a := append([]float64(nil), coef[selected]...)
+	var interp *estimators.Named
 	if selected < maxK {
 		x = math.Min(math.Abs(orders[selected-1].Z)/estimators.Z95, 1)
+		a := make([]float64, t)
 		for i := range a {
 			a[i] = (1-x)*coef[selected][i] + x*coef[selected+1][i]
 		}
+		ni, vi := jkLinearEstimate(a, f)
+		sei := math.Sqrt(math.Max(vi, 0))
+		interp = &estimators.Named{Name: "N[interpolated]", Value: estimators.Value{Estimate: ni, SE: sei, Interval: estimators.NormalInterval(ni, sei)}, Identifiable: true}
 	}
-	n, v := jkLinearEstimate(a, f)
 	res := &estimators.Result{
 		Method: name,
 		Assumptions: []string{
@@ -276,6 +284,12 @@ func Jackknife(f Frequencies) (*JackknifeResult, error) {
 			Value:        estimators.Value{Estimate: o.N, SE: o.SE, Interval: estimators.NormalInterval(o.N, o.SE)},
 			Identifiable: true,
 		})
+	}
+	if interp != nil {
+		if interp.Low < s {
+			interp.Low = s
+		}
+		res.Parameters = append(res.Parameters, *interp)
 	}
 	if t > 0 {
 		// Average capture probability implied by the estimate.
