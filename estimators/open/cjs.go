@@ -160,9 +160,25 @@ func CJSGroups(ms []MArray, groups []string, phi, p Structure) (*estimators.Resu
 	for k := range x0 {
 		x0[k] = 0.5 // a start inside the range: expit(0.5) = 0.62
 	}
-	fit, err := estimators.Maximize(lik.logLik, lik.grad, x0)
+	// The optimiser's stopping rule is an absolute gradient size, so the
+	// log-likelihood is maximised per release: the work then depends on
+	// the shape of the data, not on how many animals there are. The
+	// log-likelihood and covariance are scaled back afterwards.
+	scale := 1 / float64(releases)
+	fit, err := estimators.Maximize(
+		func(x []float64) float64 { return lik.logLik(x) * scale },
+		func(g, x []float64) {
+			lik.grad(g, x)
+			for k := range g {
+				g[k] *= scale
+			}
+		}, x0)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", name, err)
+	}
+	fit.LogLik /= scale
+	if fit.Cov != nil {
+		fit.Cov.ScaleSym(scale, fit.Cov)
 	}
 	res := &estimators.Result{
 		Method:        name,
