@@ -279,7 +279,7 @@ func addProblems(rng *rand.Rand, animals []*animal, caps []capture.Capture) []ca
 	}
 	pick := func(n int) *animal { return often[n%len(often)] }
 
-	// A recapture of a tag that was never marked, at occasion 5.
+	// A recapture of a tag that was never marked, at station C4.
 	base := caps[pick(0).records[1]]
 	ghost := base
 	ghost.TagID, ghost.Event, ghost.Notes = UnknownTag, capture.EventRecapture, NoteUnknownTag

@@ -1,0 +1,76 @@
+package server
+
+import (
+	"encoding/json"
+	"errors"
+	"io"
+	"mime"
+	"net/http"
+	"strconv"
+	"strings"
+
+	"github.com/labstack/echo/v4"
+)
+
+// bindJSON decodes the request body into v strictly: the body must be one
+// JSON value with no unknown fields and nothing after it. Failures are
+// requestErrors (400), except a body over the limit (413).
+func bindJSON(c echo.Context, v any) error {
+	r := c.Request()
+	if ct := r.Header.Get(echo.HeaderContentType); ct != "" {
+		if mt, _, err := mime.ParseMediaType(ct); err != nil || mt != echo.MIMEApplicationJSON {
+			return badRequest("", "send JSON with Content-Type: application/json (got %q)", ct)
+		}
+	}
+	dec := json.NewDecoder(r.Body)
+	dec.DisallowUnknownFields()
+	if err := dec.Decode(v); err != nil {
+		return decodeError(err)
+	}
+	if _, err := dec.Token(); !errors.Is(err, io.EOF) {
+		var mbe *http.MaxBytesError
+		if errors.As(err, &mbe) {
+			return err
+		}
+		return badRequest("", "the body has more after the JSON value; send exactly one JSON value")
+	}
+	return nil
+}
+
+func decodeError(err error) error {
+	var (
+		syn *json.SyntaxError
+		typ *json.UnmarshalTypeError
+		mbe *http.MaxBytesError
+	)
+	switch {
+	case errors.As(err, &mbe):
+		return err
+	case errors.Is(err, io.EOF):
+		return badRequest("", "the request body is empty; send a JSON object")
+	case errors.Is(err, io.ErrUnexpectedEOF):
+		return badRequest("", "the JSON body ends too early")
+	case errors.As(err, &syn):
+		return badRequest("", "malformed JSON at byte %d: %v", syn.Offset, syn)
+	case errors.As(err, &typ):
+		return badRequest(typ.Field, "field %q must be a JSON %s, not %s", typ.Field, typ.Type.Kind(), typ.Value)
+	}
+	if f, ok := strings.CutPrefix(err.Error(), "json: unknown field "); ok {
+		f, _ = strconv.Unquote(f)
+		return badRequest(f, "unknown field %q", f)
+	}
+	return badRequest("", "the JSON body could not be read: %v", err)
+}
+
+// queryInt reads an optional non-negative integer query parameter.
+func queryInt(c echo.Context, name string) (int, error) {
+	s := c.QueryParam(name)
+	if s == "" {
+		return 0, nil
+	}
+	n, err := strconv.Atoi(s)
+	if err != nil || n < 0 {
+		return 0, badRequest(name, "query parameter %s must be a whole number, 0 or more; got %q", name, s)
+	}
+	return n, nil
+}

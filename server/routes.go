@@ -1,0 +1,52 @@
+package server
+
+import (
+	"net/http"
+
+	"github.com/labstack/echo/v4"
+)
+
+// route is one endpoint: method, path (echo syntax, :name is a path
+// parameter), handler, and a line for GET /api/v1.
+type route struct {
+	method  string
+	path    string
+	handler echo.HandlerFunc
+	about   string
+}
+
+// backupPath is named because the request-timeout middleware skips it: a
+// backup of a large file may take longer than an ordinary request.
+const backupPath = "/api/v1/backup"
+
+// routes is the index of the API: every endpoint the server answers, in
+// one table. To add an endpoint, add a row here and its handler in the
+// file of its resource (studies.go, captures.go, ...). Captures and the
+// study's occasions and stations live under their study.
+func (s *Server) routes() []route {
+	return []route{
+		{http.MethodGet, "/healthz", s.health, "is the server up and the data file readable"},
+		{http.MethodGet, "/api/v1", s.index, "this list of endpoints"},
+
+		{http.MethodGet, "/api/v1/studies", s.listStudies, "list studies"},
+		{http.MethodPost, "/api/v1/studies", s.createStudy, "create a study (409 if the ID exists)"},
+		{http.MethodGet, "/api/v1/studies/:study", s.getStudy, "one study, with its occasions and stations"},
+		{http.MethodPut, "/api/v1/studies/:study", s.updateStudy, "replace an existing study"},
+
+		{http.MethodGet, "/api/v1/studies/:study/occasions", s.listOccasions, "the study's occasions"},
+		{http.MethodPost, "/api/v1/studies/:study/occasions", s.addOccasion, "add one occasion (index 0 means next)"},
+		{http.MethodPut, "/api/v1/studies/:study/occasions", s.replaceOccasions, "replace all occasions"},
+
+		{http.MethodGet, "/api/v1/studies/:study/stations", s.listStations, "the study's stations"},
+		{http.MethodPost, "/api/v1/studies/:study/stations", s.addStation, "add one station (409 if the ID exists)"},
+		{http.MethodPut, "/api/v1/studies/:study/stations", s.replaceStations, "replace all stations"},
+
+		{http.MethodGet, "/api/v1/studies/:study/captures", s.listCaptures, "captures, filtered by occasion, station, tag, species; paged with limit and cursor"},
+		{http.MethodPost, "/api/v1/studies/:study/captures", s.createCapture, "create a capture; answers with the record and its findings"},
+		{http.MethodGet, "/api/v1/studies/:study/captures/:id", s.getCapture, "one capture (deleted ones too)"},
+		{http.MethodPut, "/api/v1/studies/:study/captures/:id", s.updateCapture, "replace a capture's body"},
+		{http.MethodDelete, "/api/v1/studies/:study/captures/:id", s.deleteCapture, "mark a capture deleted (kept, can be reviewed)"},
+
+		{http.MethodGet, backupPath, s.backup, "download a consistent copy of the data file (from this machine only)"},
+	}
+}

@@ -1,0 +1,107 @@
+package server
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"log/slog"
+	"net"
+	"net/http"
+	"sync"
+
+	"github.com/labstack/echo/v4"
+	"github.com/labstack/echo/v4/middleware"
+
+	"tagtally/capture"
+)
+
+// Server is the HTTP API over one capture store. Handlers are its methods.
+type Server struct {
+	cfg   Config
+	store *capture.Store
+	log   *slog.Logger
+	echo  *echo.Echo
+
+	// studyMu serialises read-modify-write edits of studies (editStudy).
+	studyMu sync.Mutex
+}
+
+// New makes a server over an open store. It validates cfg. The caller keeps
+// ownership of the store and closes it after Serve has returned.
+func New(store *capture.Store, cfg Config) (*Server, error) {
+	if store == nil {
+		return nil, fmt.Errorf("%w: no store", ErrConfig)
+	}
+	if err := cfg.Validate(); err != nil {
+		return nil, err
+	}
+	s := &Server{cfg: cfg, store: store, log: cfg.Logger}
+	e := echo.New()
+	e.HideBanner, e.HidePort = true, true
+	e.HTTPErrorHandler = s.handleError
+	e.Use(middleware.RecoverWithConfig(middleware.RecoverConfig{DisablePrintStack: true, DisableErrorHandler: true}))
+	e.Use(limitBody(cfg.MaxBodyBytes))
+	e.Use(middleware.ContextTimeoutWithConfig(middleware.ContextTimeoutConfig{
+		Timeout: cfg.RequestTimeout,
+		Skipper: func(c echo.Context) bool { return c.Path() == backupPath },
+	}))
+	for _, r := range s.routes() {
+		e.Add(r.method, r.path, r.handler)
+	}
+	s.echo = e
+	return s, nil
+}
+
+// Handler returns the server's HTTP handler, for tests and for mounting
+// behind another server.
+func (s *Server) Handler() http.Handler { return s.echo }
+
+// Serve answers requests on ln until ctx ends, then shuts down gracefully:
+// it stops accepting connections, lets requests in flight finish (at most
+// Config.ShutdownTimeout), and returns. Only after Serve returns may the
+// caller close the store. It returns nil after a clean shutdown.
+func (s *Server) Serve(ctx context.Context, ln net.Listener) error {
+	hs := &http.Server{
+		Handler:           s.echo,
+		ReadHeaderTimeout: s.cfg.ReadHeaderTimeout,
+		ReadTimeout:       s.cfg.ReadTimeout,
+		WriteTimeout:      s.cfg.WriteTimeout,
+		IdleTimeout:       s.cfg.IdleTimeout,
+		ErrorLog:          slog.NewLogLogger(s.log.Handler(), slog.LevelWarn),
+	}
+	served := make(chan error, 1)
+	go func() { served <- hs.Serve(ln) }()
+	select {
+	case err := <-served:
+		return fmt.Errorf("server: %w", err)
+	case <-ctx.Done():
+	}
+	s.log.Info("shutting down: finishing requests in flight", "timeout", s.cfg.ShutdownTimeout)
+	sctx, cancel := context.WithTimeout(context.Background(), s.cfg.ShutdownTimeout)
+	defer cancel()
+	err := hs.Shutdown(sctx)
+	if serr := <-served; !errors.Is(serr, http.ErrServerClosed) && serr != nil {
+		err = errors.Join(err, serr)
+	}
+	if err != nil {
+		hs.Close()
+		return fmt.Errorf("server: shutdown: %w", err)
+	}
+	return nil
+}
+
+// limitBody caps every request body at n bytes. A body declared larger is
+// refused before it is read; one that turns out larger fails when read,
+// with *http.MaxBytesError, which the error handler answers with 413.
+func limitBody(n int64) echo.MiddlewareFunc {
+	return func(next echo.HandlerFunc) echo.HandlerFunc {
+		return func(c echo.Context) error {
+			r := c.Request()
+			if r.ContentLength > n {
+				return &http.MaxBytesError{Limit: n}
+			}
+			r.Body = http.MaxBytesReader(c.Response(), r.Body, n)
+			return next(c)
+		}
+	}
+}
