@@ -114,7 +114,9 @@ func TestHealthAndIndex(t *testing.T) {
 		t.Errorf("GET /healthz = %d %s", a.status, a.raw)
 	}
 	a := ts.do(t, "GET", "/api/v1", "")
-	var idx struct{ Endpoints []struct{ Method, Path string } }
+	var idx struct {
+		Endpoints []struct{ Method, Path string }
+	}
 	a.decode(t, &idx)
 	if a.status != 200 || len(idx.Endpoints) != len((&Server{}).routes()) {
 		t.Errorf("GET /api/v1 = %d with %d endpoints", a.status, len(idx.Endpoints))
