@@ -75,7 +75,7 @@ func CJS(m MArray, phi, p Structure) (*estimators.Result, error) {
 // (all with the same occasions) by maximum likelihood. With phi_i the
 // probability of surviving from occasion i to i+1 and p_j the capture
 // probability on occasion j, the m-array cell m_ij has probability
-// (Burnham et al. 1987, sec. 1.2; Lebreton et al. 1992, eq. 2)
+// (Burnham et al. 1987; Lebreton et al. 1992)
 //
 //	pi_ij = phi_i ··· phi_{j-1} · (1 - p_{i+1}) ··· (1 - p_{j-1}) · p_j
 //

@@ -80,8 +80,8 @@ func (s Summary) Validate() error {
 }
 
 // JollySeber computes the Jolly-Seber estimates (Jolly 1965; Seber 1965)
-// in the bias-adjusted forms of Seber (1982, p. 204) and Pollock et al.
-// (1990, eqs. 4.1-4.4). With occasions i = 1..T, n_i caught, m_i of them
+// in the bias-adjusted forms of Seber (1982, ch. 5) and Pollock et al.
+// (1990). With occasions i = 1..T, n_i caught, m_i of them
 // marked, R_i released, r_i of the released caught again, z_i known alive
 // but missed:
 //
@@ -92,10 +92,12 @@ func (s Summary) Validate() error {
 //	p_i   = m_i / M_i                                 i = 2..T-1
 //
 // Losses on capture enter through R_i < n_i. Variances are the
-// large-sample formulas of Jolly (1965) as given by Seber (1982, pp.
-// 202-204), with the estimates put in for the parameters:
+// large-sample formulas of Jolly (1965) as given by Seber (1982, ch. 5;
+// written here from memory and checked by simulation in the tests: the
+// mean reported SE matches the spread of the estimates), with the
+// estimates put in for the parameters:
 //
-//	var(M_i | M_i) = (M_i - m_i)(M_i - m_i + R_i)(1/r_i - 1/R_i)
+//	var(M_i)       = (M_i - m_i)(M_i - m_i + R_i)(1/r_i - 1/R_i)
 //	var(N_i | N_i) = N_i(N_i - n_i)[(M_i - m_i + R_i)/M_i (1/r_i - 1/R_i) + (1 - a_i)/m_i],  a_i = m_i/n_i
 //	var(phi_i)     = phi_i² [ (M_{i+1} - m_{i+1})(M_{i+1} - m_{i+1} + R_{i+1})/M_{i+1}² (1/r_{i+1} - 1/R_{i+1})
 //	                 + (M_i - m_i)/(M_i - m_i + R_i) (1/r_i - 1/R_i) + (1 - phi_i)/M_{i+1} ]

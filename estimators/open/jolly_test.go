@@ -26,7 +26,7 @@ func handArray() (MArray, []int) {
 }
 
 // TestJollySeberHand checks the estimates and SEs against the formulas of
-// Seber (1982, pp. 202-204) and Pollock et al. (1990) worked by hand on
+// Seber (1982, ch. 5; from memory) and Pollock et al. (1990) worked by hand on
 // handArray: each expected value below is the formula with the numbers put
 // in, written out independently of the code's loops. (No published
 // Jolly-Seber table could be consulted for this test; the formulas

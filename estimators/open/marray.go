@@ -8,7 +8,7 @@ import (
 )
 
 // MArray is the reduced m-array of a live-recapture study with T
-// occasions (Burnham et al. 1987, sec. 1.2; Lebreton et al. 1992): for
+// occasions (Burnham et al. 1987; Lebreton et al. 1992): for
 // each occasion i, the number of animals released, and how many of those
 // were next caught on each later occasion j. Occasions are numbered from 0
 // in the slices; text and parameter names number them from 1.
@@ -76,7 +76,7 @@ func (m MArray) Recaptured() []int {
 }
 
 // Summary is the per-occasion summary used by the Jolly-Seber estimates
-// (notation of Seber 1982, sec. 5.1.2, and Pollock et al. 1990). All
+// (notation of Jolly 1965, Seber 1982 and Pollock et al. 1990). All
 // slices have length T.
 type Summary struct {
 	// Caught is n_i, the number of animals caught on occasion i.
