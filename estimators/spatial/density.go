@@ -48,7 +48,10 @@ const CILogNormalPositive = "log-normal (estimate ×/÷ C, C = exp(1.96·sqrt(ln
 // DensityInput is what Density needs.
 type DensityInput struct {
 	// Stations are the trap (or net, or point) positions in metres. Their
-	// convex hull is the grid area; see Density for why the hull.
+	// convex hull is the grid area; see Density for why the hull. For
+	// stations known only by WGS84 position, ProjectStations gives the
+	// metres and the LocalProjection to put the captures in the same
+	// plane.
 	Stations []Point
 	// Animals holds, for each animal, the positions (metres) of its
 	// captures in any order, one entry per capture. Only the spread of an

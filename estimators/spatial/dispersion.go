@@ -198,8 +198,11 @@ func Morisita(counts []int) (*MorisitaResult, error) {
 		ip = 0.5 * (id - 1) / (mc - 1)
 	case id > mu:
 		ip = -0.5 * (id - 1) / (mu - 1)
-	default:
+	case mu > 0:
 		ip = -0.5 + 0.5*(id-mu)/mu
+	default:
+		// id <= mu <= 0 leaves only id = mu = 0: the uniform limit.
+		ip = -0.5
 	}
 	if mu <= 0 {
 		r.Warnings = append(r.Warnings, "Too few animals per station for the standardized index to show a significant uniform pattern (the uniform index is not above 0).")

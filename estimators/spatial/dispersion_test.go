@@ -4,6 +4,7 @@ import (
 	"encoding/csv"
 	"errors"
 	"math"
+	"math/rand/v2"
 	"os"
 	"strconv"
 	"strings"
@@ -191,5 +192,37 @@ func TestDispersionErrors(t *testing.T) {
 	// One animal is enough for the variance-to-mean ratio.
 	if _, err := VarianceToMean([]int{1, 0, 0}); err != nil {
 		t.Errorf("VMR with one animal: %v", err)
+	}
+}
+
+// TestDispersionNeverNaN runs many small random count vectors (fixed
+// seed), including sparse ones near the indices' degenerate corners, and
+// checks that every reported number is finite and I_p stays in [-1, 1].
+func TestDispersionNeverNaN(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 8))
+	for i := 0; i < 5000; i++ {
+		n := 2 + rng.IntN(12)
+		c := make([]int, n)
+		for j := range c {
+			if rng.IntN(3) == 0 {
+				c[j] = rng.IntN(1 + rng.IntN(20))
+			}
+		}
+		r, err := Dispersion(c)
+		if err != nil {
+			if !errors.Is(err, estimators.ErrNoData) {
+				t.Fatalf("%v: %v", c, err)
+			}
+			continue
+		}
+		m := r.Morisita
+		for _, v := range []float64{r.VarianceMean.Ratio, r.VarianceMean.Test.P, m.Index, m.F, m.Test.P, m.UniformIndex, m.ClumpedIndex, m.Standardized} {
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				t.Fatalf("%v: non-finite result %+v %+v", c, r.VarianceMean, m)
+			}
+		}
+		if m.Standardized < -1 || m.Standardized > 1 {
+			t.Fatalf("%v: I_p %v", c, m.Standardized)
+		}
 	}
 }

@@ -294,3 +294,36 @@ func BenchmarkNearestNeighbourDistances(b *testing.B) {
 		})
 	}
 }
+
+// BenchmarkNearestNeighbourBruteForce is the all-pairs search the sweep
+// replaces; compare the two in one run.
+func BenchmarkNearestNeighbourBruteForce(b *testing.B) {
+	pts := poissonPattern(rand.New(rand.NewPCG(1, 1)), 1000, 1000)
+	out := make([]float64, len(pts))
+	for i := 0; i < b.N; i++ {
+		for a, p := range pts {
+			best := math.Inf(1)
+			for c, q := range pts {
+				if a != c {
+					best = math.Min(best, Dist(p, q))
+				}
+			}
+			out[a] = best
+		}
+	}
+}
+
+func BenchmarkDensity(b *testing.B) {
+	rng := rand.New(rand.NewPCG(2, 2))
+	st := grid(10, 10, 15)
+	animals := make([][]Point, 200)
+	for i := range animals {
+		animals[i] = []Point{st[rng.IntN(100)], st[rng.IntN(100)], st[rng.IntN(100)]}
+	}
+	in := DensityInput{Stations: st, Animals: animals, N: estimators.Value{Estimate: 220, SE: 15}}
+	for i := 0; i < b.N; i++ {
+		if _, err := Density(in); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
