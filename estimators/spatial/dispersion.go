@@ -86,8 +86,8 @@ type VarianceMean struct {
 	Test Test `json:"test"`
 }
 
-// VarianceToMean computes the variance-to-mean ratio of counts (animals,
-// or captures, per station) and its index-of-dispersion test (Fisher,
+// VarianceToMean computes the variance-to-mean ratio of counts per
+// station and its index-of-dispersion test (Fisher,
 // Thornton & Mackenzie 1922; Blackman 1942; Krebs 1999, ch. 6):
 //
 //	ID = (n-1) s² / mean  ~  chi-square with n-1 df under a Poisson scatter
@@ -235,7 +235,12 @@ type DispersionResult struct {
 }
 
 // Dispersion computes the variance-to-mean ratio and Morisita's indices
-// for counts per station (see VarianceToMean and Morisita).
+// for counts per station (see VarianceToMean and Morisita). Include every
+// station that was operated, with its zeros. Count distinct animals per
+// station over the period (an animal caught at two stations counts at
+// each) or captures per station; animals are the units the indices
+// assume, and captures, which repeat the same animals, exaggerate
+// clumping. Stations with unequal effort should not be pooled.
 func Dispersion(counts []int) (*DispersionResult, error) {
 	vm, err := VarianceToMean(counts)
 	if err != nil {

@@ -150,3 +150,27 @@ func PolygonRegion(vertices []Point) (Region, error) {
 	}
 	return Region{Area: a, Perimeter: PolygonPerimeter(vertices)}, nil
 }
+
+// BufferedHullRegion is the convex hull of the stations grown by a strip
+// of width w metres (w ≥ 0): by Steiner's formula its area is
+// A + P·w + πw² and its perimeter P + 2πw, where A and P are the hull's.
+// It is the effective trapping area of Density as a Region, for testing
+// the pattern of capture locations over the ground the traps sample.
+func BufferedHullRegion(stations []Point, w float64) (Region, error) {
+	if err := checkPoints("station", stations); err != nil {
+		return Region{}, fmt.Errorf("buffered hull region: %w", err)
+	}
+	if len(stations) == 0 {
+		return Region{}, fmt.Errorf("buffered hull region: %w: no stations", estimators.ErrNoData)
+	}
+	if !(w >= 0) || math.IsInf(w, 0) {
+		return Region{}, fmt.Errorf("buffered hull region: strip width %v m must be a finite number ≥ 0: %w", w, estimators.ErrInvalidInput)
+	}
+	h := ConvexHull(stations)
+	a, p := PolygonArea(h), PolygonPerimeter(h)
+	r := Region{Area: a + p*w + math.Pi*w*w, Perimeter: p + 2*math.Pi*w}
+	if !(r.Area > 0) {
+		return Region{}, fmt.Errorf("buffered hull region: the stations enclose no area and the strip is 0 m: %w", estimators.ErrInvalidInput)
+	}
+	return r, nil
+}

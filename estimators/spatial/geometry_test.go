@@ -81,3 +81,28 @@ func TestRegions(t *testing.T) {
 		t.Errorf("NaN polygon err = %v", err)
 	}
 }
+
+func TestBufferedHullRegion(t *testing.T) {
+	// 135 m square grid grown by 10 m: area 135² + 540·10 + 100π, perimeter
+	// 540 + 20π (Steiner's formula; the rounded square by hand: four
+	// 135 × 10 side strips and four quarter circles).
+	r, err := BufferedHullRegion(grid(10, 10, 15), 10)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !near(r.Area, 135*135+4*135*10+math.Pi*100, 1e-9) || !near(r.Perimeter, 4*135+2*math.Pi*10, 1e-9) {
+		t.Errorf("got %+v", r)
+	}
+	if r0, err := BufferedHullRegion(grid(3, 3, 10), 0); err != nil || r0.Area != 400 || r0.Perimeter != 80 {
+		t.Errorf("no strip: %+v %v", r0, err)
+	}
+	if _, err := BufferedHullRegion([]Point{{1, 1}}, 0); !errors.Is(err, estimators.ErrInvalidInput) {
+		t.Errorf("one station, no strip: %v", err)
+	}
+	if _, err := BufferedHullRegion(nil, 5); !errors.Is(err, estimators.ErrNoData) {
+		t.Errorf("no stations: %v", err)
+	}
+	if _, err := BufferedHullRegion(grid(2, 2, 5), -1); !errors.Is(err, estimators.ErrInvalidInput) {
+		t.Errorf("negative strip: %v", err)
+	}
+}
