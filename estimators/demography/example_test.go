@@ -19,6 +19,7 @@ func ExampleSexRatio() {
 		r.ProportionMale.Estimate, r.ProportionMale.Low, r.ProportionMale.High, r.P)
 	// The interval and p-value match scipy.stats.binomtest for 31 of 50
 	// (testdata/binomial.csv).
+
 	// Output:
 	// proportion male 0.62 (exact 95% CI 0.472 to 0.753), test of 1:1 p = 0.119
 }

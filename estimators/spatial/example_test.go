@@ -39,6 +39,7 @@ func ExampleDensity() {
 		r.Density.Estimate, r.Density.SE, r.Density.Low, r.Density.High)
 	// Checked by hand: MMDM = (10+20+10+20)/4; A(W) = 3600 + 240·7.5 +
 	// π·7.5² m²; CV² = (3/24)² + (287.12² · 8.333/4)/5576.7².
+
 	// Output:
 	// grid 0.36 ha, MMDM 15.0 m, strip 7.5 m
 	// effective area 0.558 ha
@@ -56,6 +57,7 @@ func ExampleDispersion() {
 	fmt.Printf("Morisita %.2f, standardized %.2f: %s\n", r.Morisita.Index, r.Morisita.Standardized, r.Morisita.StandardizedPattern)
 	// Checked by hand: Σx = 20, Σx² = 136, s² = (136-50)/7,
 	// I_d = 8·116/380.
+
 	// Output:
 	// variance/mean 4.91: clumped (p = 2.9e-05)
 	// Morisita 2.44, standardized 0.57: clumped
@@ -78,6 +80,7 @@ func ExampleClarkEvans() {
 	}
 	fmt.Printf("R = %.2f, z = %.2f: %s\n", r.R, r.Test.Statistic, r.Test.Pattern)
 	// Checked by hand: r_A = 25 m, r_E = 12.5 + (0.0514 + 0.041/4)·400/16.
+
 	// Output:
 	// R = 1.78, z = 5.35: uniform
 }
