@@ -61,8 +61,10 @@ const (
 //	SE  = sqrt(0.0703 A/n² + 0.037 P sqrt(A/n⁵))
 //
 // R = r_A/r_E and z = (r_A - r_E)/SE, two-sided against the standard
-// normal. Donnelly's correction is meant for n of at least 7 or so; a
-// warning says when n is smaller. Every point must lie in the region: a
+// normal. Donnelly's simulations covered patterns of about 7 points or
+// more (as recalled, not checked against the original); a warning says
+// when n is smaller. The tests check this SE against the simulated spread
+// of r_A for Poisson patterns in a square (within 2%). Every point must lie in the region: a
 // pattern whose convex hull is larger than the region's area is refused.
 // Fewer than 2 points is ErrNoData.
 func ClarkEvans(points []Point, region Region, donnelly bool) (*NearestNeighbour, error) {

@@ -211,13 +211,16 @@ func TestClarkEvansSimulatedPatterns(t *testing.T) {
 
 // TestClarkEvansDonnellyLevel simulates Poisson patterns in a bounded
 // square (fixed seed) and checks that the Donnelly-corrected test rejects
-// about 5% of them, while the uncorrected one is biased toward "uniform".
+// about 5% of them, that R averages 1, that Donnelly's SE matches the
+// simulated spread of r_A, and that the uncorrected test is biased toward
+// "uniform".
 func TestClarkEvansDonnellyLevel(t *testing.T) {
 	rng := rand.New(rand.NewPCG(42, 43))
 	reg, _ := RectangleRegion(100, 100)
 	const reps = 400
 	var rejDon, uniformPlain int
-	var sumR float64
+	var sumR, sumSE float64
+	var obs []float64
 	for i := 0; i < reps; i++ {
 		pts := poissonPattern(rng, 50, 100)
 		d, err := ClarkEvans(pts, reg, true)
@@ -232,6 +235,12 @@ func TestClarkEvansDonnellyLevel(t *testing.T) {
 			uniformPlain++
 		}
 		sumR += d.R
+		sumSE += d.SE
+		obs = append(obs, d.Observed)
+	}
+	// Donnelly's SE formula against the spread of r_A over the simulations.
+	if sd, se := math.Sqrt(sampleVariance(obs, meanOf(obs))), sumSE/reps; math.Abs(se/sd-1) > 0.12 {
+		t.Errorf("Donnelly SE %.4f m, simulated SD of the mean NN distance %.4f m", se, sd)
 	}
 	// 400 draws at a true 5%: SD of the count is about 4.4; allow 8..35.
 	if rejDon < 8 || rejDon > 35 {
