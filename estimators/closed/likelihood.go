@@ -33,6 +33,7 @@ package closed
 import (
 	"fmt"
 	"math"
+	"sort"
 	"strconv"
 
 	"gonum.org/v1/gonum/mathext"
@@ -170,6 +171,13 @@ func summarise(method string, h *estimators.Histories, minOccasions int) (*captu
 	for kt, c := range freq {
 		st.freq = append(st.freq, freqCell{k: kt[0], trials: kt[1], count: c})
 	}
+	// A fixed order keeps sums, and so fits, identical from run to run.
+	sort.Slice(st.freq, func(a, b int) bool {
+		if st.freq[a].k != st.freq[b].k {
+			return st.freq[a].k < st.freq[b].k
+		}
+		return st.freq[a].trials < st.freq[b].trials
+	})
 	if st.maxCaptures < 2 {
 		return nil, fmt.Errorf("closed %s: %w: each of the %d animals was caught only once", method, estimators.ErrNoRecaptures, st.mt1)
 	}
@@ -263,19 +271,46 @@ var (
 	assumeIndep = "Animals are caught independently of one another."
 )
 
-// fit maximises the model from x0 and assembles the Result: N with the
-// delta-method SE from the observed information and the profile-likelihood
-// interval, natural-scale parameters, log-likelihood, K and AICc.
-func (m *model) fit(x0 []float64) (*estimators.Result, error) {
-	st := m.st
-	if st.allCaughtEveryTime() {
+// fitModel maximises the model from each starting point, keeps the best
+// maximum (mixture likelihoods can have several) and assembles the Result:
+// N with the delta-method SE from the observed information and the
+// profile-likelihood interval, natural-scale parameters, log-likelihood, K
+// and AICc. When every animal was caught every time it returns the
+// boundary result without fitting.
+func fitModel(m *model, starts [][]float64, err error) (*estimators.Result, error) {
+	if err != nil {
+		return nil, err
+	}
+	if m.st.allCaughtEveryTime() {
 		return m.boundaryAllCaught(), nil
 	}
-	f, err := maximizeScaled(m.ll, m.grad, x0, float64(st.mt1))
+	best, err := bestFit(m, starts)
 	if err != nil {
-		return nil, fmt.Errorf("closed %s: %w", m.method, err)
+		return nil, err
 	}
-	return m.result(f)
+	return m.result(best)
+}
+
+// bestFit maximises from every start and returns the highest maximum.
+func bestFit(m *model, starts [][]float64) (*estimators.Fit, error) {
+	var best *estimators.Fit
+	var firstErr error
+	for _, x0 := range starts {
+		f, err := maximizeScaled(m.ll, m.grad, x0, float64(m.st.mt1))
+		if err != nil {
+			if firstErr == nil {
+				firstErr = err
+			}
+			continue
+		}
+		if best == nil || f.LogLik > best.LogLik {
+			best = f
+		}
+	}
+	if best == nil {
+		return nil, wrapMethod(m.method, firstErr)
+	}
+	return best, nil
 }
 
 // maximizeScaled runs estimators.Maximize on lnL/scale (and its gradient)

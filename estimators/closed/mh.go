@@ -26,9 +26,14 @@ import (
 // with N (common for Mh with few recaptures) an error wrapping
 // ErrNotConverged is returned.
 func Mh(h *estimators.Histories) (*estimators.Result, error) {
+	return fitModel(mhModel(h))
+}
+
+// mhModel builds Mh's likelihood and its starting points.
+func mhModel(h *estimators.Histories) (*model, [][]float64, error) {
 	st, err := summarise("Mh", h, 4)
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
 	tf := float64(st.t)
 	m := &model{
@@ -73,29 +78,11 @@ func Mh(h *estimators.Histories) (*estimators.Result, error) {
 	// spreads around the M0 capture probability and keep the best fit.
 	f0 := startF0(st)
 	p0 := st.total / (st.trials + tf*f0)
-	starts := [][3]float64{{0.5, 2, 0.5}, {0.3, 1.5, 0.7}, {0.7, 3, 0.85}}
-	var best *estimators.Fit
-	var firstErr error
-	for _, s := range starts {
-		x0 := []float64{math.Log(1.5*f0 + 1), clampedLogit(p0 * s[0]), clampedLogit(math.Min(0.95, p0*s[1])), estimators.Logit(s[2])}
-		if st.allCaughtEveryTime() {
-			return m.fit(x0)
-		}
-		f, err := maximizeScaled(m.ll, nil, x0, float64(st.mt1))
-		if err != nil {
-			if firstErr == nil {
-				firstErr = err
-			}
-			continue
-		}
-		if best == nil || f.LogLik > best.LogLik {
-			best = f
-		}
+	var starts [][]float64
+	for _, s := range [][4]float64{{1.5, 0.5, 2, 0.5}, {1.5, 0.3, 1.5, 0.7}, {1.5, 0.7, 3, 0.85}, {4, 0.2, 1.5, 0.6}} {
+		starts = append(starts, []float64{math.Log(s[0]*f0 + 1), clampedLogit(p0 * s[1]), clampedLogit(math.Min(0.95, p0*s[2])), estimators.Logit(s[3])})
 	}
-	if best == nil {
-		return nil, wrapMethod("Mh", firstErr)
-	}
-	return m.result(best)
+	return m, starts, nil
 }
 
 // Mth fits model Mth (Otis et al. 1978) as Pledger's (2000) two-point
@@ -111,9 +98,14 @@ func Mh(h *estimators.Histories) (*estimators.Result, error) {
 // when the classes differ (δ ≠ 0 and 0 < w < 1); otherwise it reduces to Mt
 // and the information matrix is singular (SEs 0, with a warning).
 func Mth(h *estimators.Histories) (*estimators.Result, error) {
+	return fitModel(mthModel(h))
+}
+
+// mthModel builds Mth's likelihood and its starting points.
+func mthModel(h *estimators.Histories) (*model, [][]float64, error) {
 	st, err := summarise("Mth", h, 3)
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
 	t := st.t
 	ev := newMthEval(st)
@@ -156,8 +148,7 @@ func Mth(h *estimators.Histories) (*estimators.Result, error) {
 		return profileByOptimisation(m, f0, warm)
 	}
 	f0 := startF0(st)
-	var best *estimators.Fit
-	var firstErr error
+	var starts [][]float64
 	for _, spread := range []float64{1.5, 3} {
 		x0 := make([]float64, t+3)
 		x0[0] = math.Log(1.5*f0 + 1)
@@ -166,24 +157,9 @@ func Mth(h *estimators.Histories) (*estimators.Result, error) {
 		}
 		x0[t+1] = spread
 		x0[t+2] = estimators.Logit(0.6)
-		if st.allCaughtEveryTime() {
-			return m.fit(x0)
-		}
-		f, err := maximizeScaled(m.ll, m.grad, x0, float64(st.mt1))
-		if err != nil {
-			if firstErr == nil {
-				firstErr = err
-			}
-			continue
-		}
-		if best == nil || f.LogLik > best.LogLik {
-			best = f
-		}
+		starts = append(starts, x0)
 	}
-	if best == nil {
-		return nil, wrapMethod("Mth", firstErr)
-	}
-	return m.result(best)
+	return m, starts, nil
 }
 
 // mthEval evaluates the Mth log-likelihood and its gradient over distinct

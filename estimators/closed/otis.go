@@ -24,9 +24,14 @@ import (
 // ErrNoRecaptures; fewer than 2 occasions ErrTooFewOccasions; every animal
 // caught every time a boundary result N = Mt1, p = 1.
 func M0(h *estimators.Histories) (*estimators.Result, error) {
+	return fitModel(m0Model(h))
+}
+
+// m0Model builds M0's likelihood and its starting points.
+func m0Model(h *estimators.Histories) (*model, [][]float64, error) {
 	st, err := summarise("M0", h, 2)
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
 	tf := float64(st.t)
 	s, fc := st.total, st.trials-st.total // successes, failures among caught animals
@@ -51,7 +56,7 @@ func M0(h *estimators.Histories) (*estimators.Result, error) {
 		return nTerm(st.mt1, f0) + xlogy(s, p) + xlogy(f, 1-p), []float64{estimators.Logit(p)}, nil
 	}
 	f0 := startF0(st)
-	return m.fit([]float64{math.Log(f0), estimators.Logit(s / (s + fc + tf*f0))})
+	return m, [][]float64{[]float64{math.Log(f0), estimators.Logit(s / (s + fc + tf*f0))}}, nil
 }
 
 // Mt fits model Mt of Otis et al. (1978) (Darroch 1958): a capture
@@ -67,9 +72,14 @@ func M0(h *estimators.Histories) (*estimators.Result, error) {
 //
 // SE, interval and degenerate cases as for M0.
 func Mt(h *estimators.Histories) (*estimators.Result, error) {
+	return fitModel(mtModel(h))
+}
+
+// mtModel builds Mt's likelihood and its starting points.
+func mtModel(h *estimators.Histories) (*model, [][]float64, error) {
 	st, err := summarise("Mt", h, 2)
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
 	t := st.t
 	m := &model{
@@ -112,7 +122,7 @@ func Mt(h *estimators.Histories) (*estimators.Result, error) {
 	for j := 0; j < t; j++ {
 		x0[j+1] = clampedLogit((st.n[j] + 0.5) / (st.avail[j] + f0 + 1))
 	}
-	return m.fit(x0)
+	return m, [][]float64{x0}, nil
 }
 
 // Mb fits model Mb of Otis et al. (1978): a first-capture probability p
@@ -129,9 +139,14 @@ func Mt(h *estimators.Histories) (*estimators.Result, error) {
 // finite only when first captures decline over the occasions; otherwise an
 // error wrapping ErrNotConverged says the data do not bound N. K = 3.
 func Mb(h *estimators.Histories) (*estimators.Result, error) {
+	return fitModel(mbModel(h))
+}
+
+// mbModel builds Mb's likelihood and its starting points.
+func mbModel(h *estimators.Histories) (*model, [][]float64, error) {
 	st, err := summarise("Mb", h, 2)
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
 	tf := float64(st.t)
 	mt1 := float64(st.mt1)
@@ -165,7 +180,7 @@ func Mb(h *estimators.Histories) (*estimators.Result, error) {
 		return v, []float64{estimators.Logit(p), clampedLogit(c)}, nil
 	}
 	f0 := startF0(st)
-	return m.fit([]float64{math.Log(f0), estimators.Logit(mt1 / (mt1 + failCaught + tf*f0)), clampedLogit((recaps + 0.5) / (recapTrials + 1))})
+	return m, [][]float64{[]float64{math.Log(f0), estimators.Logit(mt1 / (mt1 + failCaught + tf*f0)), clampedLogit((recaps + 0.5) / (recapTrials + 1))}}, nil
 }
 
 // Mtb fits model Mtb (Otis et al. 1978): first-capture probabilities p_j
@@ -188,9 +203,14 @@ func Mb(h *estimators.Histories) (*estimators.Result, error) {
 // poorly determined under Mtb: read the profile interval, and expect the
 // error for an unbounded likelihood when first captures do not decline.
 func Mtb(h *estimators.Histories) (*estimators.Result, error) {
+	return fitModel(mtbModel(h))
+}
+
+// mtbModel builds Mtb's likelihood and its starting points.
+func mtbModel(h *estimators.Histories) (*model, [][]float64, error) {
 	st, err := summarise("Mtb", h, 3)
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
 	t := st.t
 	mt1 := float64(st.mt1)
@@ -244,7 +264,7 @@ func Mtb(h *estimators.Histories) (*estimators.Result, error) {
 		firstTrials += st.u[j] + notYet[j] + f0
 	}
 	x0[t+1] = clampedLogit((recaps+0.5)/(recapTrials+1)) - clampedLogit(firsts/firstTrials)
-	return m.fit(x0)
+	return m, [][]float64{x0}, nil
 }
 
 // clampedLogit is logit(p) with p kept inside [1e-9, 1 − 1e-9], for
