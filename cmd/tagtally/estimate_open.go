@@ -1,0 +1,237 @@
+package main
+
+import (
+	"encoding/json"
+	"fmt"
+	"io"
+	"strings"
+	"text/tabwriter"
+
+	"tagtally/estimators"
+	"tagtally/estimators/open"
+)
+
+// openReport is the --open --json output of `tagtally estimate`.
+type openReport struct {
+	Animals     int                    `json:"animals"`
+	Occasions   int                    `json:"occasions"`
+	LostOnCatch int                    `json:"lost_on_capture"`
+	JollySeber  *open.JollySeberResult `json:"jolly_seber"`
+	CJS         openCJSReport          `json:"cjs"`
+	Cautions    []string               `json:"cautions"`
+}
+
+type openCJSReport struct {
+	Criterion string             `json:"criterion"`
+	Groups    []string           `json:"groups,omitempty"`
+	Models    []openCJSModel     `json:"models"`
+	Averaged  []estimators.Named `json:"averaged"`
+	Failed    []string           `json:"failed,omitempty"`
+	Warnings  []string           `json:"warnings,omitempty"`
+}
+
+type openCJSModel struct {
+	Name     string             `json:"name"`
+	LogLik   float64            `json:"loglik"`
+	Params   int                `json:"params"`
+	AICc     float64            `json:"aicc"`
+	Delta    float64            `json:"delta"`
+	Weight   float64            `json:"weight"`
+	Phi      []estimators.Named `json:"phi"`
+	P        []estimators.Named `json:"p"`
+	Products []estimators.Named `json:"products,omitempty"`
+	Boundary bool               `json:"boundary,omitempty"`
+	Warnings []string           `json:"warnings,omitempty"`
+}
+
+// openCautions is printed with every open-population report.
+var openCautions = []string{
+	"Capturing, marking and handling wild animals needs the permits, animal-welfare approval and handling training required where the work is done; follow local rules and licensed practice.",
+	"Survival here is apparent survival: death and permanent emigration cannot be told apart.",
+	"Abundance and recruits assume marked and unmarked animals are equally catchable; capture heterogeneity biases N low.",
+}
+
+// estimateOpen runs the open-population part of `tagtally estimate`:
+// the Jolly-Seber table by occasion for all animals together, and the CJS
+// model table (group models too when every animal has a group label and
+// there are at least two groups). It writes text, or JSON when asJSON.
+func estimateOpen(h *estimators.Histories, asJSON bool, stdout io.Writer) error {
+	_, summary, err := open.FromHistories(h)
+	if err != nil {
+		return err
+	}
+	js, err := open.JollySeber(summary)
+	if err != nil {
+		return err
+	}
+	var ms []open.MArray
+	var groups []string
+	if h.Groups != nil {
+		groups, ms, err = open.GroupMArrays(h)
+		if err != nil {
+			return err
+		}
+	}
+	if len(ms) < 2 {
+		m, _, err := open.FromHistories(h)
+		if err != nil {
+			return err
+		}
+		ms, groups = []open.MArray{m}, nil
+	}
+	tab, err := open.CJSTable(ms, groups, nil, 1)
+	if err != nil {
+		return err
+	}
+	rep := openReport{
+		Animals:    h.Animals(),
+		Occasions:  h.Occasions(),
+		JollySeber: js,
+		CJS: openCJSReport{
+			Criterion: tab.CriterionName,
+			Groups:    groups,
+			Averaged:  tab.Averaged,
+			Failed:    tab.Failed,
+			Warnings:  tab.Warnings,
+		},
+		Cautions: openCautions,
+	}
+	for i := range summary.Caught {
+		rep.LostOnCatch += summary.Lost(i)
+	}
+	for _, row := range tab.Rows {
+		r := row.Result
+		mod := openCJSModel{
+			Name:     strings.TrimPrefix(r.Method, "CJS "),
+			LogLik:   r.LogLik,
+			Params:   r.Params,
+			AICc:     row.Criterion,
+			Delta:    row.Delta,
+			Weight:   row.Weight,
+			Boundary: r.Boundary,
+			Warnings: r.Warnings,
+		}
+		for _, p := range r.Parameters {
+			switch {
+			case strings.Contains(p.Name, "*"):
+				mod.Products = append(mod.Products, p)
+			case strings.HasPrefix(p.Name, "phi"):
+				mod.Phi = append(mod.Phi, p)
+			default:
+				mod.P = append(mod.P, p)
+			}
+		}
+		rep.CJS.Models = append(rep.CJS.Models, mod)
+	}
+	if asJSON {
+		enc := json.NewEncoder(stdout)
+		enc.SetIndent("", "  ")
+		return enc.Encode(rep)
+	}
+	return writeOpenText(stdout, &rep)
+}
+
+func writeOpenText(w io.Writer, rep *openReport) error {
+	fmt.Fprintf(w, "Open-population estimates: %d animals, %d occasions, %d lost on capture\n\n", rep.Animals, rep.Occasions, rep.LostOnCatch)
+
+	js := rep.JollySeber
+	fmt.Fprintf(w, "%s\n", js.Method)
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintln(tw, "occasion\tn\tm\tR\tr\tz\tN\tSE\t95% CI\tphi\tSE\t95% CI\tB\tSE\tp\tSE\t")
+	for _, o := range js.Occasions {
+		fmt.Fprintf(tw, "%d\t%d\t%d\t%d\t%d\t%d\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t\n",
+			o.Occasion, o.Caught, o.Marked, o.Released, o.Recaptured, o.MissedAlive,
+			num(o.N, "%.1f"), se(o.N, "%.1f"), ci(o.N, "%.0f"),
+			num(o.Phi, "%.3f"), se(o.Phi, "%.3f"), ci(o.Phi, "%.3f"),
+			num(o.B, "%.1f"), se(o.B, "%.1f"),
+			num(o.P, "%.3f"), se(o.P, "%.3f"))
+	}
+	if err := tw.Flush(); err != nil {
+		return err
+	}
+	fmt.Fprintf(w, "Variances: %s.\n", js.Variances)
+	for _, s := range js.Warnings {
+		fmt.Fprintf(w, "  note: %s\n", s)
+	}
+
+	cjs := rep.CJS
+	fmt.Fprintf(w, "\nCormack-Jolly-Seber models, ranked by %s (sample size: releases before the last occasion)\n", cjs.Criterion)
+	if len(cjs.Groups) > 0 {
+		fmt.Fprintf(w, "Groups: %s\n", strings.Join(cjs.Groups, ", "))
+	}
+	tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+	fmt.Fprintf(tw, "model\tK\t-2 lnL\t%s\tdelta\tweight\t\n", cjs.Criterion)
+	for _, m := range cjs.Models {
+		flag := ""
+		if m.Boundary {
+			flag = "  (boundary estimate)"
+		}
+		fmt.Fprintf(tw, "%s\t%d\t%.2f\t%.2f\t%.2f\t%.3f\t%s\n", m.Name, m.Params, -2*m.LogLik, m.AICc, m.Delta, m.Weight, flag)
+	}
+	if err := tw.Flush(); err != nil {
+		return err
+	}
+	for _, f := range cjs.Failed {
+		fmt.Fprintf(w, "  not fitted: %s\n", f)
+	}
+	if len(cjs.Models) > 0 {
+		best := cjs.Models[0]
+		fmt.Fprintf(w, "\nEstimates of the best model, %s:\n", best.Name)
+		writeNamed(w, append(append(append([]estimators.Named(nil), best.Phi...), best.P...), best.Products...))
+		for _, s := range best.Warnings {
+			fmt.Fprintf(w, "  note: %s\n", s)
+		}
+	}
+	fmt.Fprintln(w, "\nModel-averaged estimates (all models, Akaike weights):")
+	writeNamed(w, cjs.Averaged)
+	for _, s := range cjs.Warnings {
+		fmt.Fprintf(w, "  note: %s\n", s)
+	}
+
+	fmt.Fprintln(w, "\nAssumptions:")
+	for _, a := range js.Assumptions {
+		fmt.Fprintf(w, "  - %s\n", a)
+	}
+	fmt.Fprintln(w, "\nCautions:")
+	for _, c := range rep.Cautions {
+		fmt.Fprintf(w, "  - %s\n", c)
+	}
+	return nil
+}
+
+func writeNamed(w io.Writer, ps []estimators.Named) {
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+	for _, p := range ps {
+		if !p.Identifiable {
+			fmt.Fprintf(tw, "  %s\tnot identifiable\t\t\n", p.Name)
+			continue
+		}
+		interval := "-"
+		if p.Kind != estimators.CINone {
+			interval = fmt.Sprintf("%.3f-%.3f", p.Low, p.High)
+		}
+		fmt.Fprintf(tw, "  %s\t%.3f\tSE %.3f\t95%% CI %s\n", p.Name, p.Estimate, p.SE, interval)
+	}
+	tw.Flush()
+}
+
+func num(v *estimators.Value, format string) string {
+	if v == nil {
+		return "-"
+	}
+	return fmt.Sprintf(format, v.Estimate)
+}
+
+func se(v *estimators.Value, format string) string {
+	if v == nil || v.Kind == estimators.CINone {
+		return "-"
+	}
+	return fmt.Sprintf(format, v.SE)
+}
+
+func ci(v *estimators.Value, format string) string {
+	if v == nil || v.Kind == estimators.CINone {
+		return "-"
+	}
+	return fmt.Sprintf(format+"-"+format, v.Low, v.High)
+}
