@@ -20,6 +20,9 @@ type command struct {
 // commands is the index of everything the binary does, in the order
 // `tagtally help` lists them.
 var commands = []command{
+	{"serve", "run the base-camp server for phones and the coordinator", runServe},
+	{"demo", "add the invented demonstration study to the data file", runDemo},
+	{"backup", "copy the data file safely, even while the server runs", runBackup},
 	{"version", "print the tagtally version", runVersion},
 	{"estimate", "estimate population size from capture histories", runEstimate},
 }
