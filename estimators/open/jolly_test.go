@@ -3,6 +3,7 @@ package open
 import (
 	"encoding/json"
 	"errors"
+	"fmt"
 	"math"
 	"testing"
 
@@ -189,4 +190,29 @@ func TestJollySeberBadInput(t *testing.T) {
 			t.Errorf("%s: err = %v", name, err)
 		}
 	}
+}
+
+// ExampleJollySeber prints the abundance estimates of a made-up
+// five-occasion study given as an m-array and catch counts.
+func ExampleJollySeber() {
+	m, caught := handArray()
+	s, err := Summarize(m, caught)
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	res, err := JollySeber(s)
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	for _, o := range res.Occasions {
+		if o.N != nil {
+			fmt.Printf("occasion %d: N = %.1f (SE %.1f, 95%% CI %.0f-%.0f)\n", o.Occasion, o.N.Estimate, o.N.SE, o.N.Low, o.N.High)
+		}
+	}
+	// Output:
+	// occasion 2: N = 195.7 (SE 65.3, 95% CI 115-392)
+	// occasion 3: N = 227.1 (SE 63.5, 95% CI 143-407)
+	// occasion 4: N = 137.9 (SE 35.1, 95% CI 94-241)
 }
