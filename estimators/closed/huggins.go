@@ -48,91 +48,15 @@ import (
 // time a boundary result N = Mt1.
 func Huggins(h *estimators.Histories, covariates []string, timeEffects bool) (*estimators.Result, error) {
 	method := "Huggins p(" + hugginsLabel(covariates, timeEffects) + ")"
-	st, err := summarise(method, h, 2)
+	ev, st, mean, sd, err := newHugginsEval(method, h, covariates, timeEffects)
 	if err != nil {
 		return nil, err
 	}
-	t := st.t
-	nc := len(covariates)
-	mean := make([]float64, nc)
-	sd := make([]float64, nc)
-	seen := map[string]bool{}
-	for k, name := range covariates {
-		if seen[name] {
-			return nil, fmt.Errorf("closed %s: %w: covariate %q named twice", method, estimators.ErrInvalidInput, name)
-		}
-		seen[name] = true
-		v, ok := h.Covariates[name]
-		if !ok {
-			return nil, fmt.Errorf("closed %s: %w: no covariate %q in the data", method, estimators.ErrInvalidInput, name)
-		}
-		for i, z := range v {
-			if math.IsNaN(z) || math.IsInf(z, 0) {
-				return nil, fmt.Errorf("closed %s: %w: covariate %q of animal %d is not a finite number", method, estimators.ErrInvalidInput, name, i+1)
-			}
-			mean[k] += z
-		}
-		mean[k] /= float64(len(v))
-		for _, z := range v {
-			sd[k] += (z - mean[k]) * (z - mean[k])
-		}
-		sd[k] = math.Sqrt(sd[k] / float64(len(v)))
-		if !(sd[k] > 0) {
-			return nil, fmt.Errorf("closed %s: %w: covariate %q has the same value for every animal, so its effect cannot be estimated", method, estimators.ErrInvalidInput, name)
-		}
-	}
-
-	// Group animals that share a history, loss flag and covariate values.
-	type key struct {
-		hist string
-		cov  string
-	}
-	index := map[key]int{}
-	var rows []hugginsRow
-	hb := make([]byte, t+1)
-	var cb strings.Builder
-	for i, row := range h.Caught {
-		for j, c := range row {
-			hb[j] = '0'
-			if c {
-				hb[j] = '1'
-			}
-		}
-		lost := h.Removed != nil && h.Removed[i]
-		hb[t] = '.'
-		if lost {
-			hb[t] = 'x'
-		}
-		cb.Reset()
-		z := make([]float64, nc)
-		for k, name := range covariates {
-			z[k] = (h.Covariates[name][i] - mean[k]) / sd[k]
-			fmt.Fprintf(&cb, "%x,", math.Float64bits(h.Covariates[name][i]))
-		}
-		kk := key{string(hb), cb.String()}
-		if idx, ok := index[kk]; ok {
-			rows[idx].count++
-			continue
-		}
-		r := hugginsRow{z: z, count: 1, avail: t, lost: lost}
-		for j, c := range row {
-			if c {
-				r.caughtAt = append(r.caughtAt, j)
-				r.last = j
-			}
-		}
-		if lost {
-			r.avail = r.last + 1
-		}
-		index[kk] = len(rows)
-		rows = append(rows, r)
-	}
-
+	t, nc, rows := st.t, len(covariates), ev.rows
 	k := 1 + nc
 	if timeEffects {
 		k += t - 1
 	}
-	ev := &hugginsEval{rows: rows, t: t, nc: nc, time: timeEffects, eta: make([]float64, t), p: make([]float64, t)}
 	res := &estimators.Result{
 		Method:        method,
 		HasLikelihood: true,
@@ -151,7 +75,7 @@ func Huggins(h *estimators.Histories, covariates []string, timeEffects bool) (*e
 		res.N = &estimators.Value{Estimate: mt1, Interval: estimators.Interval{Low: mt1, High: mt1, Level: estimators.DefaultLevel, Kind: estimators.CILogNormal}}
 		res.Boundary = true
 		res.Warnings = []string{"every animal was caught on every occasion it could be, so N is estimated as the number caught (Mt1) with every capture probability 1; this is a boundary estimate without a standard error"}
-		res.AICc = estimators.AICc(0, k, st.mt1)
+		res.AICc = finiteAICc(0, k, st.mt1)
 		return res, nil
 	}
 
@@ -165,7 +89,10 @@ func Huggins(h *estimators.Histories, covariates []string, timeEffects bool) (*e
 		return nil, fmt.Errorf("closed %s: %w: the log-likelihood is not finite at the optimum", method, estimators.ErrNotConverged)
 	}
 	res.LogLik = f.LogLik
-	res.AICc = estimators.AICc(f.LogLik, k, st.mt1)
+	res.AICc = finiteAICc(f.LogLik, k, st.mt1)
+	if res.AICc == 0 {
+		res.Warnings = append(res.Warnings, fmt.Sprintf("AICc is undefined: %d parameters for %d animals caught", k, st.mt1))
+	}
 
 	// Horvitz-Thompson N and Huggins' variance.
 	nHat, htVar := 0.0, 0.0
@@ -246,6 +173,93 @@ func Huggins(h *estimators.Histories, covariates []string, timeEffects bool) (*e
 		}
 	}
 	return res, nil
+}
+
+// newHugginsEval validates the covariates, standardises them and groups
+// animals sharing history, loss flag and covariate values.
+func newHugginsEval(method string, h *estimators.Histories, covariates []string, timeEffects bool) (*hugginsEval, *captureStats, []float64, []float64, error) {
+	st, err := summarise(method, h, 2)
+	if err != nil {
+		return nil, nil, nil, nil, err
+	}
+	t := st.t
+	nc := len(covariates)
+	mean := make([]float64, nc)
+	sd := make([]float64, nc)
+	seen := map[string]bool{}
+	for k, name := range covariates {
+		if seen[name] {
+			return nil, nil, nil, nil, fmt.Errorf("closed %s: %w: covariate %q named twice", method, estimators.ErrInvalidInput, name)
+		}
+		seen[name] = true
+		v, ok := h.Covariates[name]
+		if !ok {
+			return nil, nil, nil, nil, fmt.Errorf("closed %s: %w: no covariate %q in the data", method, estimators.ErrInvalidInput, name)
+		}
+		for i, z := range v {
+			if math.IsNaN(z) || math.IsInf(z, 0) {
+				return nil, nil, nil, nil, fmt.Errorf("closed %s: %w: covariate %q of animal %d is not a finite number", method, estimators.ErrInvalidInput, name, i+1)
+			}
+			mean[k] += z
+		}
+		mean[k] /= float64(len(v))
+		for _, z := range v {
+			sd[k] += (z - mean[k]) * (z - mean[k])
+		}
+		sd[k] = math.Sqrt(sd[k] / float64(len(v)))
+		if !(sd[k] > 0) {
+			return nil, nil, nil, nil, fmt.Errorf("closed %s: %w: covariate %q has the same value for every animal, so its effect cannot be estimated", method, estimators.ErrInvalidInput, name)
+		}
+	}
+
+	// Group animals that share a history, loss flag and covariate values.
+	type key struct {
+		hist string
+		cov  string
+	}
+	index := map[key]int{}
+	var rows []hugginsRow
+	hb := make([]byte, t+1)
+	var cb strings.Builder
+	for i, row := range h.Caught {
+		for j, c := range row {
+			hb[j] = '0'
+			if c {
+				hb[j] = '1'
+			}
+		}
+		lost := h.Removed != nil && h.Removed[i]
+		hb[t] = '.'
+		if lost {
+			hb[t] = 'x'
+		}
+		cb.Reset()
+		z := make([]float64, nc)
+		for k, name := range covariates {
+			z[k] = (h.Covariates[name][i] - mean[k]) / sd[k]
+			fmt.Fprintf(&cb, "%x,", math.Float64bits(h.Covariates[name][i]))
+		}
+		kk := key{string(hb), cb.String()}
+		if idx, ok := index[kk]; ok {
+			rows[idx].count++
+			continue
+		}
+		r := hugginsRow{z: z, count: 1, avail: t, lost: lost}
+		for j, c := range row {
+			if c {
+				r.caughtAt = append(r.caughtAt, j)
+				r.last = j
+			}
+		}
+		if lost {
+			r.avail = r.last + 1
+		}
+		index[kk] = len(rows)
+		rows = append(rows, r)
+	}
+
+	ev := &hugginsEval{rows: rows, t: t, nc: nc, time: timeEffects, eta: make([]float64, t), p: make([]float64, t)}
+	return ev, st, mean, sd, nil
 }
 
 // hugginsLabel names the model's predictors, e.g. "t + mass + male" or ".".

@@ -235,10 +235,13 @@ func xlogy(x, y float64) float64 {
 	return x * math.Log(y)
 }
 
-// maxF0 is the largest number of uncaught animals we accept as a finite
-// estimate, relative to the number caught. Beyond it the likelihood is
-// taken to increase without bound in N.
-func maxF0(mt1 int) float64 { return 1e4 * float64(mt1+10) }
+// maxF0 is the largest number of uncaught animals we accept as an
+// estimate: a hundred times the animals caught, plus 1000. A maximum
+// beyond it (or a likelihood still rising there) means the data do not
+// bound N under the model in any useful way, and the fit reports that as
+// an error instead of an absurd number. The profile interval is searched
+// up to the same limit.
+func maxF0(mt1 int) float64 { return 100*float64(mt1) + 1000 }
 
 // model is one full-likelihood model on the working scale
 // x = (ln f0, other parameters...).
@@ -353,6 +356,13 @@ func (m *model) result(f *estimators.Fit) (*estimators.Result, error) {
 	if f0 > maxF0(st.mt1) || math.IsInf(f0, 0) {
 		return nil, fmt.Errorf("closed %s: %w: the likelihood keeps increasing as N grows (N above %.3g), so these data do not bound N under this model", m.method, estimators.ErrNotConverged, float64(st.mt1)+maxF0(st.mt1))
 	}
+	if m.profile != nil {
+		// A maximum inside the range can still be a local one when the
+		// likelihood rises again towards large N.
+		if v, _, err := m.profile(maxF0(st.mt1), f.X[1:]); err == nil && v > f.LogLik+1e-6 {
+			return nil, fmt.Errorf("closed %s: %w: the likelihood is higher at N = %.0f than at the local maximum N = %.1f, so these data do not bound N under this model", m.method, estimators.ErrNotConverged, float64(st.mt1)+maxF0(st.mt1), float64(st.mt1)+f0)
+		}
+	}
 	mt1 := float64(st.mt1)
 	res := &estimators.Result{
 		Method:        m.method,
@@ -363,7 +373,7 @@ func (m *model) result(f *estimators.Fit) (*estimators.Result, error) {
 		Assumptions:   m.assumptions,
 		References:    m.references,
 	}
-	res.AICc = estimators.AICc(res.LogLik, res.Params, res.SampleSize)
+	res.AICc = finiteAICc(res.LogLik, res.Params, res.SampleSize)
 	seN := 0.0
 	if s := f.SE(0); !math.IsNaN(s) {
 		seN = f0 * s // delta method: dN/ds = e^s = f0
@@ -391,7 +401,7 @@ func (m *model) result(f *estimators.Fit) (*estimators.Result, error) {
 			}
 		}
 	}
-	if math.IsInf(res.AICc, 1) {
+	if res.AICc == 0 {
 		res.Warnings = append(res.Warnings, fmt.Sprintf("AICc is undefined: %d parameters for %d animals caught", res.Params, res.SampleSize))
 	}
 	return res, nil
@@ -420,7 +430,7 @@ func (m *model) boundaryAllCaught() *estimators.Result {
 		References:    m.references,
 		Warnings:      []string{"every animal was caught on every occasion it could be, so N is estimated as the number caught (Mt1) with every capture probability 1; this is a boundary estimate without a standard error"},
 	}
-	res.AICc = estimators.AICc(0, m.k, m.st.mt1)
+	res.AICc = finiteAICc(0, m.k, m.st.mt1)
 	return res
 }
 
@@ -477,3 +487,17 @@ func startF0(st *captureStats) float64 {
 
 // wrapMethod prefixes an error with the method's name.
 func wrapMethod(method string, err error) error { return fmt.Errorf("closed %s: %w", method, err) }
+
+// finiteAICc is estimators.AICc, except that where AICc is undefined
+// (n − K − 1 <= 0, where estimators.AICc gives +Inf) it returns 0, which
+// the Result's JSON leaves out ("aicc" is omitempty) and which a reader
+// must not take as a value; the fit adds a warning. estimators.Select
+// recomputes the criterion from LogLik, Params and SampleSize, so model
+// ranking still sees +Inf.
+func finiteAICc(lnL float64, k, n int) float64 {
+	v := estimators.AICc(lnL, k, n)
+	if math.IsInf(v, 0) || math.IsNaN(v) {
+		return 0
+	}
+	return v
+}

@@ -245,3 +245,273 @@ func hasWarning(r *estimators.Result, part string) bool {
 	}
 	return false
 }
+
+// TestHugginsAgainstScipy compares Huggins fits with scipy's
+// animal-by-animal conditional likelihood (testdata/scipy_likelihood.py):
+// maximum, coefficients on the covariates' own units and their SEs, the
+// Horvitz-Thompson N and its Huggins (1989) SE.
+func TestHugginsAgainstScipy(t *testing.T) {
+	for _, want := range readScipy(t).Huggins {
+		name := strings.Join(want.Covariates, "+")
+		if want.Time {
+			name += "+time"
+		}
+		if want.Lost {
+			name += "/losses"
+		}
+		t.Run(name, func(t *testing.T) {
+			h := readLikelihoodHistories(t, want.Lost)
+			res, err := Huggins(h, want.Covariates, want.Time)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if math.Abs(res.LogLik-want.LogLik) > 1e-4 {
+				t.Errorf("lnL = %.6f, scipy %.6f", res.LogLik, want.LogLik)
+			}
+			if res.Params != want.K || len(res.Parameters) != len(want.Beta) {
+				t.Fatalf("K = %d with %d coefficients, want %d", res.Params, len(res.Parameters), want.K)
+			}
+			for i, p := range res.Parameters {
+				if math.Abs(p.Estimate-want.Beta[i]) > 1e-3*want.BetaSE[i] {
+					t.Errorf("%s = %.6g, scipy %.6g", p.Name, p.Estimate, want.Beta[i])
+				}
+				if math.Abs(p.SE-want.BetaSE[i]) > 0.03*want.BetaSE[i] {
+					t.Errorf("SE of %s = %.6g, scipy %.6g", p.Name, p.SE, want.BetaSE[i])
+				}
+			}
+			if math.Abs(res.N.Estimate-want.N) > 1e-4*want.N {
+				t.Errorf("N = %.5f, scipy %.5f", res.N.Estimate, want.N)
+			}
+			if math.Abs(res.N.SE-want.SEN) > 0.03*want.SEN {
+				t.Errorf("SE(N) = %.5f, scipy %.5f", res.N.SE, want.SEN)
+			}
+			if res.N.Low < float64(h.Animals()) || res.N.Kind != estimators.CILogNormal {
+				t.Errorf("interval %+v", res.N.Interval)
+			}
+			t.Logf("N %.3f (scipy %.3f) SE %.3f (%.3f) lnL %.5f", res.N.Estimate, want.N, res.N.SE, want.SEN, res.LogLik)
+		})
+	}
+}
+
+// TestLikelihoodGrid checks the fitted maxima of M0, Mb and Mh without any
+// optimiser: the log-likelihood is evaluated on a fine grid of natural-scale
+// parameters around the fit, and no grid point may beat the fit, while the
+// best grid point must lie within a grid step or two of it.
+func TestLikelihoodGrid(t *testing.T) {
+	logit := estimators.Logit
+	t.Run("M0 cottontail", func(t *testing.T) {
+		h := readCottontail(t)
+		m, starts, err := m0Model(h)
+		if err != nil {
+			t.Fatal(err)
+		}
+		f, err := bestFit(m, starts)
+		if err != nil {
+			t.Fatal(err)
+		}
+		mt1 := float64(h.Animals())
+		nHat, pHat := mt1+math.Exp(f.X[0]), estimators.Expit(f.X[1])
+		best, bn, bp := math.Inf(-1), 0.0, 0.0
+		// N from Mt1 to 140 by 0.02, p from 0.06 to 0.11 by 0.0002.
+		for n := mt1; n <= 140; n += 0.02 {
+			for p := 0.06; p <= 0.11; p += 0.0002 {
+				v := m.ll([]float64{math.Log(n - mt1), logit(p)})
+				if v > best {
+					best, bn, bp = v, n, p
+				}
+			}
+		}
+		if best > f.LogLik+1e-9 {
+			t.Errorf("grid point N=%.2f p=%.4f has lnL %.8f above the fit's %.8f", bn, bp, best, f.LogLik)
+		}
+		if math.Abs(bn-nHat) > 0.04 || math.Abs(bp-pHat) > 0.0004 {
+			t.Errorf("grid maximum at N=%.2f p=%.4f, fit at N=%.3f p=%.5f", bn, bp, nHat, pHat)
+		}
+	})
+	t.Run("Mb invented", func(t *testing.T) {
+		h := readLikelihoodHistories(t, false)
+		m, starts, err := mbModel(h)
+		if err != nil {
+			t.Fatal(err)
+		}
+		f, err := bestFit(m, starts)
+		if err != nil {
+			t.Fatal(err)
+		}
+		mt1 := float64(h.Animals())
+		nHat, pHat, cHat := mt1+math.Exp(f.X[0]), estimators.Expit(f.X[1]), estimators.Expit(f.X[2])
+		best, bn, bp, bc := math.Inf(-1), 0.0, 0.0, 0.0
+		for n := nHat - 4; n <= nHat+4; n += 0.1 {
+			for p := pHat - 0.03; p <= pHat+0.03; p += 0.001 {
+				for c := cHat - 0.03; c <= cHat+0.03; c += 0.001 {
+					v := m.ll([]float64{math.Log(n - mt1), logit(p), logit(c)})
+					if v > best {
+						best, bn, bp, bc = v, n, p, c
+					}
+				}
+			}
+		}
+		if best > f.LogLik+1e-9 {
+			t.Errorf("grid point beats the fit: %.8f > %.8f", best, f.LogLik)
+		}
+		if math.Abs(bn-nHat) > 0.2 || math.Abs(bp-pHat) > 0.002 || math.Abs(bc-cHat) > 0.002 {
+			t.Errorf("grid maximum at (%.2f, %.4f, %.4f), fit at (%.3f, %.5f, %.5f)", bn, bp, bc, nHat, pHat, cHat)
+		}
+	})
+	t.Run("Mh cottontail, local grid", func(t *testing.T) {
+		h := readCottontail(t)
+		m, starts, err := mhModel(h)
+		if err != nil {
+			t.Fatal(err)
+		}
+		f, err := bestFit(m, starts)
+		if err != nil {
+			t.Fatal(err)
+		}
+		// 21 points a side in each of (ln f0, logit p1, logit p2, logit w),
+		// steps 0.005 on the working scale.
+		x := make([]float64, 4)
+		best := math.Inf(-1)
+		var walk func(d int)
+		walk = func(d int) {
+			if d == 4 {
+				if v := m.ll(x); v > best {
+					best = v
+				}
+				return
+			}
+			for k := -10; k <= 10; k++ {
+				x[d] = f.X[d] + 0.005*float64(k)
+				walk(d + 1)
+			}
+		}
+		walk(0)
+		if best > f.LogLik+1e-9 {
+			t.Errorf("a grid point beats the fit: %.9f > %.9f", best, f.LogLik)
+		}
+		if best < f.LogLik-1e-12 {
+			t.Errorf("the grid (which contains the fit) lost its maximum: %.9f < %.9f", best, f.LogLik)
+		}
+	})
+}
+
+// TestPublishedEstimatingEquations checks the fitted N against the
+// published equations that the maximum-likelihood estimates solve. Those
+// equations come from the ratio L(N)/L(N−1) over whole numbers N; here N is
+// continuous through lnΓ(N+1) − lnΓ(N−Mt1+1), whose derivative
+// ψ(N+1) − ψ(N−Mt1+1) is close to ln(N/(N−Mt1)) but not equal to it, so
+// the roots agree to within one animal, not exactly. The whole-number N
+// with the highest profile likelihood must be one of the two whole numbers
+// next to N̂.
+func TestPublishedEstimatingEquations(t *testing.T) {
+	t.Run("M0, Otis et al. (1978)", func(t *testing.T) {
+		// Mt1 = N [1 − (1 − n./(tN))^t]
+		h := readCottontail(t)
+		res, err := M0(h)
+		if err != nil {
+			t.Fatal(err)
+		}
+		tf, caps, mt1 := float64(h.Occasions()), 0.0, float64(h.Animals())
+		for _, row := range h.Caught {
+			for _, c := range row {
+				if c {
+					caps++
+				}
+			}
+		}
+		root := bisectN(t, mt1, func(n float64) float64 { return n*(1-math.Pow(1-caps/(tf*n), tf)) - mt1 })
+		if math.Abs(root-res.N.Estimate) > 1 {
+			t.Errorf("N̂ = %.4f, the published equation's root %.4f", res.N.Estimate, root)
+		}
+		checkWholeNumberMaximum(t, "M0", h, res.N.Estimate)
+	})
+	t.Run("Mt, Darroch (1958)", func(t *testing.T) {
+		// 1 − Mt1/N = Π_j (1 − n_j/N)
+		h := readLikelihoodHistories(t, false)
+		res, err := Mt(h)
+		if err != nil {
+			t.Fatal(err)
+		}
+		mt1 := float64(h.Animals())
+		nj := make([]float64, h.Occasions())
+		for _, row := range h.Caught {
+			for j, c := range row {
+				if c {
+					nj[j]++
+				}
+			}
+		}
+		root := bisectN(t, mt1, func(n float64) float64 {
+			prod := 1.0
+			for _, v := range nj {
+				prod *= 1 - v/n
+			}
+			return prod - (1 - mt1/n)
+		})
+		if math.Abs(root-res.N.Estimate) > 1 {
+			t.Errorf("N̂ = %.4f, Darroch's equation's root %.4f", res.N.Estimate, root)
+		}
+		checkWholeNumberMaximum(t, "Mt", h, res.N.Estimate)
+	})
+	t.Run("cottontail enclosure of known size", func(t *testing.T) {
+		// The enclosure held N = 135 rabbits (Edwards & Eberhardt 1967, from
+		// memory, per the shared reference README). Catchability differed
+		// between rabbits (same paper's abstract), so M0 is expected to
+		// fall short while the Mh mixture's interval should cover 135.
+		h := readCottontail(t)
+		m0, err := M0(h)
+		if err != nil {
+			t.Fatal(err)
+		}
+		mh, err := Mh(h)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !(m0.N.High < 135) {
+			t.Errorf("M0 interval %.1f-%.1f; expected it to fall below the true 135 under heterogeneity", m0.N.Low, m0.N.High)
+		}
+		if !(mh.N.Low <= 135 && 135 <= mh.N.High) {
+			t.Errorf("Mh interval %.1f-%.1f misses the true N = 135", mh.N.Low, mh.N.High)
+		}
+	})
+}
+
+// bisectN finds the root of g on (mt1, 100·mt1], where g changes sign once.
+func bisectN(t *testing.T, mt1 float64, g func(float64) float64) float64 {
+	t.Helper()
+	lo, hi := mt1+1e-9, 100*mt1
+	if g(lo)*g(hi) > 0 {
+		t.Fatalf("no sign change: g(%.3g) = %.3g, g(%.3g) = %.3g", lo, g(lo), hi, g(hi))
+	}
+	for i := 0; i < 200; i++ {
+		mid := (lo + hi) / 2
+		if g(mid)*g(lo) > 0 {
+			lo = mid
+		} else {
+			hi = mid
+		}
+	}
+	return (lo + hi) / 2
+}
+
+// checkWholeNumberMaximum evaluates the closed-form profile likelihood of
+// M0 or Mt at every whole N from Mt1 to 3·Mt1 and requires its maximum to
+// be floor(N̂) or ceil(N̂).
+func checkWholeNumberMaximum(t *testing.T, model string, h *estimators.Histories, nHat float64) {
+	t.Helper()
+	m, _, err := builders[model].build(h)
+	if err != nil {
+		t.Fatal(err)
+	}
+	mt1 := h.Animals()
+	best, arg := math.Inf(-1), 0
+	for n := mt1; n <= 3*mt1; n++ {
+		v, _, _ := m.profile(float64(n-mt1), nil)
+		if v > best {
+			best, arg = v, n
+		}
+	}
+	if float64(arg) != math.Floor(nHat) && float64(arg) != math.Ceil(nHat) {
+		t.Errorf("%s: whole-number maximum at N = %d, continuous N̂ = %.4f", model, arg, nHat)
+	}
+}

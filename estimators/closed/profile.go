@@ -24,7 +24,7 @@ import (
 // Degenerate cases: when the deviance at N = Mt1 (f0 = 0) is already below
 // the cut-off, or N̂ sits at Mt1, the lower end is Mt1; it is never below
 // Mt1. When the deviance has not reached the cut-off by
-// N = Mt1 + profileLimit(Mt1), the upper end is reported there with a
+// N = Mt1 + maxF0(Mt1), the upper end is reported there with a
 // warning (the interval is open above: JSON and spreadsheets cannot carry
 // an infinite bound, so the searched limit is given and said to be one).
 func profileInterval(m *model, xhat []float64, llmax float64) (estimators.Interval, []string) {
@@ -82,9 +82,17 @@ func profileInterval(m *model, xhat []float64, llmax float64) (estimators.Interv
 		step = math.Log(2 / math.Max(fhat, 1e-3)) // jump to f0 = 2 first
 	}
 	sHi := sLo + step
-	limit := math.Log(profileLimit(m.st.mt1))
+	limit := math.Log(maxF0(m.st.mt1))
+	if sHi > limit {
+		sHi = limit
+	}
 	var gHi float64
 	for {
+		if sHi <= sLo {
+			iv.High = mt1 + math.Exp(limit)
+			warns = append(warns, fmt.Sprintf("the profile likelihood for N is still within the 95%% cut-off at N = %.0f, so the interval is open above (the data do not bound N from above); the upper end shown is where the search stopped, not a confidence limit", iv.High))
+			return iv, warns
+		}
 		d, err := dev(math.Exp(sHi))
 		if err != nil {
 			return failed(err)
@@ -111,10 +119,6 @@ func profileInterval(m *model, xhat []float64, llmax float64) (estimators.Interv
 	iv.High = mt1 + math.Exp(root)
 	return iv, warns
 }
-
-// profileLimit is how far above Mt1 the upper end of a profile interval
-// is searched: a hundred times the animals caught, plus 1000.
-func profileLimit(mt1 int) float64 { return 100*float64(mt1) + 1000 }
 
 // illinois finds a root of g in the bracket [a, b] where g(a) and g(b)
 // have opposite signs, by the Illinois modification of regula falsi
