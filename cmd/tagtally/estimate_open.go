@@ -2,8 +2,10 @@ package main
 
 import (
 	"encoding/json"
+	"flag"
 	"fmt"
 	"io"
+	"strconv"
 	"strings"
 	"text/tabwriter"
 
@@ -13,6 +15,8 @@ import (
 
 // openReport is the --open --json output of `tagtally estimate`.
 type openReport struct {
+	Source      string                 `json:"source,omitempty"`
+	Notes       []string               `json:"data_notes,omitempty"`
 	Animals     int                    `json:"animals"`
 	Occasions   int                    `json:"occasions"`
 	LostOnCatch int                    `json:"lost_on_capture"`
@@ -51,11 +55,40 @@ var openCautions = []string{
 	"Abundance and recruits assume marked and unmarked animals are equally catchable; capture heterogeneity biases N low.",
 }
 
+// The --open option of `tagtally estimate`, added through the command's
+// extension hook so that the closed-population code stays untouched.
+func init() {
+	var openFlag *bool
+	var fs *flag.FlagSet
+	estimateExtensions = append(estimateExtensions, estimateExtension{
+		flags: func(f *flag.FlagSet) {
+			fs = f
+			openFlag = f.Bool("open", false, "open-population estimates instead: the Jolly-Seber table by occasion and the Cormack-Jolly-Seber model table (group models when every animal has a group); with --json one JSON object")
+		},
+		run: func(in *estimateInput, stdout io.Writer) (bool, error) {
+			if openFlag == nil || !*openFlag {
+				return false, nil
+			}
+			cHat := 1.0
+			if f := fs.Lookup("c-hat"); f != nil {
+				v, err := strconv.ParseFloat(f.Value.String(), 64)
+				if err != nil {
+					return true, fmt.Errorf("%w: --c-hat: %v", errUsage, err)
+				}
+				cHat = v
+			}
+			return true, estimateOpen(in, cHat, stdout)
+		},
+	})
+}
+
 // estimateOpen runs the open-population part of `tagtally estimate`:
 // the Jolly-Seber table by occasion for all animals together, and the CJS
 // model table (group models too when every animal has a group label and
-// there are at least two groups). It writes text, or JSON when asJSON.
-func estimateOpen(h *estimators.Histories, asJSON bool, stdout io.Writer) error {
+// there are at least two groups), ranked by QAICc when cHat > 1. It
+// writes text, or one JSON object when in.JSON.
+func estimateOpen(in *estimateInput, cHat float64, stdout io.Writer) error {
+	h := in.Histories
 	_, summary, err := open.FromHistories(h)
 	if err != nil {
 		return err
@@ -79,11 +112,13 @@ func estimateOpen(h *estimators.Histories, asJSON bool, stdout io.Writer) error 
 		}
 		ms, groups = []open.MArray{m}, nil
 	}
-	tab, err := open.CJSTable(ms, groups, nil, 1)
+	tab, err := open.CJSTable(ms, groups, nil, cHat)
 	if err != nil {
 		return err
 	}
 	rep := openReport{
+		Source:     in.Source,
+		Notes:      in.Notes,
 		Animals:    h.Animals(),
 		Occasions:  h.Occasions(),
 		JollySeber: js,
@@ -123,7 +158,7 @@ func estimateOpen(h *estimators.Histories, asJSON bool, stdout io.Writer) error 
 		}
 		rep.CJS.Models = append(rep.CJS.Models, mod)
 	}
-	if asJSON {
+	if in.JSON {
 		enc := json.NewEncoder(stdout)
 		enc.SetIndent("", "  ")
 		return enc.Encode(rep)
@@ -132,7 +167,11 @@ func estimateOpen(h *estimators.Histories, asJSON bool, stdout io.Writer) error 
 }
 
 func writeOpenText(w io.Writer, rep *openReport) error {
-	fmt.Fprintf(w, "Open-population estimates: %d animals, %d occasions, %d lost on capture\n\n", rep.Animals, rep.Occasions, rep.LostOnCatch)
+	fmt.Fprintf(w, "Open-population estimates: %d animals, %d occasions, %d lost on capture", rep.Animals, rep.Occasions, rep.LostOnCatch)
+	if rep.Source != "" {
+		fmt.Fprintf(w, " (%s)", rep.Source)
+	}
+	fmt.Fprint(w, "\n\n")
 
 	js := rep.JollySeber
 	fmt.Fprintf(w, "%s\n", js.Method)
@@ -188,6 +227,12 @@ func writeOpenText(w io.Writer, rep *openReport) error {
 		fmt.Fprintf(w, "  note: %s\n", s)
 	}
 
+	if len(rep.Notes) > 0 {
+		fmt.Fprintln(w, "\nData notes:")
+		for _, n := range rep.Notes {
+			fmt.Fprintf(w, "  - %s\n", n)
+		}
+	}
 	fmt.Fprintln(w, "\nAssumptions:")
 	for _, a := range js.Assumptions {
 		fmt.Fprintf(w, "  - %s\n", a)

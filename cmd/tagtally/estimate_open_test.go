@@ -5,12 +5,10 @@ import (
 	"encoding/json"
 	"fmt"
 	"math/rand/v2"
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
-
-	"tagtally/analysis"
-	"tagtally/capture"
-	"tagtally/estimators"
 )
 
 // openHistoriesCSV simulates an invented open-population study (six
@@ -54,22 +52,19 @@ func openHistoriesCSV(grouped bool) string {
 	return b.String()
 }
 
-func openHistories(t *testing.T, grouped bool) *estimators.Histories {
+func openHistoriesFile(t *testing.T, text string) string {
 	t.Helper()
-	hs, err := capture.ReadHistoryCSV(strings.NewReader(openHistoriesCSV(grouped)))
-	if err != nil {
+	path := filepath.Join(t.TempDir(), "open.csv")
+	if err := os.WriteFile(path, []byte(text), 0o600); err != nil {
 		t.Fatal(err)
 	}
-	h, _, err := analysis.FromHistorySet(hs)
-	if err != nil {
-		t.Fatal(err)
-	}
-	return h
+	return path
 }
 
 func TestEstimateOpenJSON(t *testing.T) {
 	var out bytes.Buffer
-	if err := estimateOpen(openHistories(t, false), true, &out); err != nil {
+	path := openHistoriesFile(t, openHistoriesCSV(false))
+	if err := runEstimate([]string{"--open", "--json", "--histories", path}, &out); err != nil {
 		t.Fatal(err)
 	}
 	var rep struct {
@@ -118,28 +113,39 @@ func TestEstimateOpenJSON(t *testing.T) {
 
 func TestEstimateOpenText(t *testing.T) {
 	var out bytes.Buffer
-	if err := estimateOpen(openHistories(t, true), false, &out); err != nil {
+	path := openHistoriesFile(t, openHistoriesCSV(true))
+	if err := runEstimate([]string{"--open", "--histories", path}, &out); err != nil {
 		t.Fatal(err)
 	}
 	s := out.String()
-	for _, want := range []string{"Jolly-Seber", "phi(.) p(.)", "phi(g) p(.)", "Groups: female, male", "permits", "Assumptions:", "not identifiable"} {
+	for _, want := range []string{"450 animals, 6 occasions", "Jolly-Seber", "phi(.) p(.)", "phi(g) p(.)", "Groups: female, male", "ranked by AICc", "permits", "Assumptions:", "not identifiable"} {
 		if !strings.Contains(s, want) {
 			t.Errorf("text output lacks %q:\n%s", want, s)
 		}
 	}
 }
 
-func TestEstimateOpenTooFewOccasions(t *testing.T) {
-	hs, err := capture.ReadHistoryCSV(strings.NewReader("id,history\nA1,11\nA2,10\nA3,01\n"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	h, _, err := analysis.FromHistorySet(hs)
-	if err != nil {
-		t.Fatal(err)
-	}
+func TestEstimateOpenOverdispersion(t *testing.T) {
 	var out bytes.Buffer
-	if err := estimateOpen(h, false, &out); err == nil || !strings.Contains(err.Error(), "too few occasions") {
-		t.Errorf("err = %v", err)
+	path := openHistoriesFile(t, openHistoriesCSV(false))
+	if err := runEstimate([]string{"--open", "--c-hat", "1.8", "--histories", path}, &out); err != nil {
+		t.Fatal(err)
+	}
+	if s := out.String(); !strings.Contains(s, "ranked by QAICc") || !strings.Contains(s, "c-hat = 1.800") {
+		t.Errorf("c-hat not applied:\n%s", s)
+	}
+}
+
+func TestEstimateOpenBadInput(t *testing.T) {
+	for name, c := range map[string]struct{ csv, want string }{
+		"two occasions": {"id,history\nA1,11\nA2,10\nA3,01\n", "too few occasions"},
+		"no recaptures": {"id,history\nA1,100\nA2,010\nA3,001\n", "no recaptures"},
+		"all lost":      {"id,history,removed\nA1,100,1\nA2,010,1\nA3,001,0\n", "no recaptures"},
+	} {
+		var out bytes.Buffer
+		err := runEstimate([]string{"--open", "--histories", openHistoriesFile(t, c.csv)}, &out)
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%s: err = %v, want %q", name, err, c.want)
+		}
 	}
 }
