@@ -104,29 +104,6 @@ func (g *GOF) SelectionCHat() float64 {
 	return 1
 }
 
-// gofAnimal is the part of one capture history the tests read.
-type gofAnimal struct {
-	caught  []bool
-	first   int
-	last    int
-	removed bool // lost on capture at last
-}
-
-func (a *gofAnimal) released(i int) bool {
-	return a.caught[i] && !(a.removed && i == a.last)
-}
-
-// nextAfter returns the first occasion after i at which the animal was
-// caught, or -1.
-func (a *gofAnimal) nextAfter(i int) int {
-	for j := i + 1; j < len(a.caught); j++ {
-		if a.caught[j] {
-			return j
-		}
-	}
-	return -1
-}
-
 // GoodnessOfFit computes the component goodness-of-fit tests of the
 // Cormack-Jolly-Seber model with time-dependent survival and capture
 // probability (Burnham et al. 1987; Pollock, Hines & Nichols 1985), in the
@@ -180,30 +157,16 @@ func GoodnessOfFit(h *estimators.Histories) (*GOF, error) {
 	if k < 3 {
 		return nil, fmt.Errorf("goodness of fit: %w: %d occasions, the component tests need at least 3", estimators.ErrTooFewOccasions, k)
 	}
-	animals := make([]gofAnimal, h.Animals())
-	for n, row := range h.Caught {
-		a := gofAnimal{caught: row, first: -1}
-		for j, c := range row {
-			if c {
-				if a.first < 0 {
-					a.first = j
-				}
-				a.last = j
-			}
-		}
-		a.removed = h.Removed != nil && h.Removed[n]
-		animals[n] = a
-	}
-
+	tab := gofCount(h)
 	g := &GOF{Method: "CJS goodness of fit: TEST 2 and TEST 3 components"}
 	for i := 1; i <= k-2; i++ {
-		g.Components = append(g.Components, test3SR(animals, i))
+		g.Components = append(g.Components, tab.component(Test3SR, i))
 		if i <= k-3 {
-			g.Components = append(g.Components, test3SM(animals, i, k))
-			g.Components = append(g.Components, test2CT(animals, i))
+			g.Components = append(g.Components, tab.component(Test3SM, i))
+			g.Components = append(g.Components, tab.component(Test2CT, i))
 		}
 		if i <= k-4 {
-			g.Components = append(g.Components, test2CL(animals, i, k))
+			g.Components = append(g.Components, tab.component(Test2CL, i))
 		}
 	}
 	sort.SliceStable(g.Components, func(a, b int) bool {
@@ -309,103 +272,116 @@ var (
 	rowsCaughtAt = [2]string{"caught at i", "not caught at i"}
 )
 
-func test3SR(animals []gofAnimal, i int) GOFComponent {
-	c := GOFComponent{Test: Test3SR, Occasion: i + 1, Rows: rowsNewOld,
-		Columns: []string{"seen again", "never seen again"}}
-	c.Observed = [2][]int{make([]int, 2), make([]int, 2)}
-	for n := range animals {
-		a := &animals[n]
-		if !a.released(i) {
-			continue
-		}
-		r := 0
-		if a.first == i {
-			r = 1
-		}
-		col := 1
-		if a.last > i {
-			col = 0
-		}
-		c.Observed[r][col]++
-	}
-	testTable(&c, false)
-	return c
+// gofCounts holds every component table, filled in one pass over the
+// animals (0-based occasions). sr[i] and ct[i] are 2×2; sm[i][r][j] and
+// cl[i][r][j] count animals next seen at occasion j.
+type gofCounts struct {
+	k      int
+	sr, ct [][2][2]int
+	sm, cl [][2][]int
 }
 
-func test3SM(animals []gofAnimal, i, k int) GOFComponent {
-	c := GOFComponent{Test: Test3SM, Occasion: i + 1, Rows: rowsNewOld}
-	for j := i + 1; j < k; j++ {
-		c.Columns = append(c.Columns, fmt.Sprintf("next seen at %d", j+1))
+// gofCount builds the tables. For each animal with captures c_1 < c_2 <
+// ... (the last possibly a loss on capture):
+//
+//   - each release at c (not the loss) adds to 3.SR_c, and, when seen
+//     again at next, to 3.SM_c, in row "newly marked" when c is the first
+//     capture;
+//   - each capture c after the first that is followed by another at next
+//     adds to row "caught at i" of 2.CT_c (and 2.CL_c when next > c+1);
+//   - each occasion i strictly between two consecutive captures adds to
+//     row "not caught at i" of 2.CT_i (and 2.CL_i when next > i+1).
+//
+// The cost is one pass over the histories, O(animals × occasions).
+func gofCount(h *estimators.Histories) *gofCounts {
+	k := h.Occasions()
+	t := &gofCounts{k: k, sr: make([][2][2]int, k), ct: make([][2][2]int, k), sm: make([][2][]int, k), cl: make([][2][]int, k)}
+	for i := 0; i < k; i++ {
+		t.sm[i] = [2][]int{make([]int, k), make([]int, k)}
+		t.cl[i] = [2][]int{make([]int, k), make([]int, k)}
 	}
-	c.Observed = [2][]int{make([]int, k-i-1), make([]int, k-i-1)}
-	for n := range animals {
-		a := &animals[n]
-		if !a.released(i) {
-			continue
+	caps := make([]int, 0, k)
+	for a, row := range h.Caught {
+		caps = caps[:0]
+		for j, c := range row {
+			if c {
+				caps = append(caps, j)
+			}
 		}
-		next := a.nextAfter(i)
-		if next < 0 {
-			continue
+		removed := h.Removed != nil && h.Removed[a]
+		f := caps[0]
+		for idx, c := range caps {
+			next := -1
+			if idx+1 < len(caps) {
+				next = caps[idx+1]
+			}
+			released := !(removed && idx == len(caps)-1)
+			if released && c >= 1 && c <= k-2 {
+				r := 0
+				if c == f {
+					r = 1
+				}
+				if next >= 0 {
+					t.sr[c][r][0]++
+					t.sm[c][r][next]++
+				} else {
+					t.sr[c][r][1]++
+				}
+			}
+			if next < 0 {
+				continue
+			}
+			if c > f && c <= k-3 {
+				t.add2(c, 0, next)
+			}
+			for i := max(c+1, 1); i < next && i <= k-3; i++ {
+				t.add2(i, 1, next)
+			}
 		}
-		r := 0
-		if a.first == i {
-			r = 1
-		}
-		c.Observed[r][next-i-1]++
 	}
-	testTable(&c, true)
-	return c
+	return t
 }
 
-func test2CT(animals []gofAnimal, i int) GOFComponent {
-	c := GOFComponent{Test: Test2CT, Occasion: i + 1, Rows: rowsCaughtAt,
-		Columns: []string{fmt.Sprintf("next seen at %d", i+2), "next seen later"}}
-	c.Observed = [2][]int{make([]int, 2), make([]int, 2)}
-	for n := range animals {
-		a := &animals[n]
-		if a.first >= i {
-			continue
-		}
-		next := a.nextAfter(i)
-		if next < 0 {
-			continue
-		}
-		r := 1
-		if a.caught[i] {
-			r = 0
-		}
-		col := 1
-		if next == i+1 {
-			col = 0
-		}
-		c.Observed[r][col]++
+// add2 counts one animal known alive at i (row r) next seen at next > i in
+// the TEST 2 tables.
+func (t *gofCounts) add2(i, r, next int) {
+	if next == i+1 {
+		t.ct[i][r][0]++
+		return
 	}
-	testTable(&c, false)
-	return c
+	t.ct[i][r][1]++
+	t.cl[i][r][next]++
 }
 
-func test2CL(animals []gofAnimal, i, k int) GOFComponent {
-	c := GOFComponent{Test: Test2CL, Occasion: i + 1, Rows: rowsCaughtAt}
-	for j := i + 2; j < k; j++ {
-		c.Columns = append(c.Columns, fmt.Sprintf("next seen at %d", j+1))
+// component returns the tested table of one component at occasion i
+// (0-based).
+func (t *gofCounts) component(test string, i int) GOFComponent {
+	c := GOFComponent{Test: test, Occasion: i + 1}
+	pool := false
+	switch test {
+	case Test3SR:
+		c.Rows = rowsNewOld
+		c.Columns = []string{"seen again", "never seen again"}
+		c.Observed = [2][]int{t.sr[i][0][:], t.sr[i][1][:]}
+	case Test2CT:
+		c.Rows = rowsCaughtAt
+		c.Columns = []string{fmt.Sprintf("next seen at %d", i+2), "next seen later"}
+		c.Observed = [2][]int{t.ct[i][0][:], t.ct[i][1][:]}
+	case Test3SM, Test2CL:
+		pool = true
+		from, counts := i+1, t.sm[i]
+		c.Rows = rowsNewOld
+		if test == Test2CL {
+			from, counts = i+2, t.cl[i]
+			c.Rows = rowsCaughtAt
+		}
+		for j := from; j < t.k; j++ {
+			c.Columns = append(c.Columns, fmt.Sprintf("next seen at %d", j+1))
+		}
+		c.Observed = [2][]int{counts[0][from:], counts[1][from:]}
 	}
-	c.Observed = [2][]int{make([]int, k-i-2), make([]int, k-i-2)}
-	for n := range animals {
-		a := &animals[n]
-		if a.first >= i {
-			continue
-		}
-		next := a.nextAfter(i)
-		if next < i+2 {
-			continue
-		}
-		r := 1
-		if a.caught[i] {
-			r = 0
-		}
-		c.Observed[r][next-i-2]++
-	}
-	testTable(&c, true)
+	c.Observed = [2][]int{append([]int(nil), c.Observed[0]...), append([]int(nil), c.Observed[1]...)}
+	testTable(&c, pool)
 	return c
 }
 

@@ -3,9 +3,11 @@ package open
 import (
 	"fmt"
 	"math"
+	"strings"
 
 	"gonum.org/v1/gonum/diff/fd"
 	"gonum.org/v1/gonum/mat"
+	"gonum.org/v1/gonum/mathext"
 
 	"tagtally/estimators"
 )
@@ -120,7 +122,7 @@ func JollySeberML(h *estimators.Histories, phi, p Structure) (*JSMLResult, error
 	}
 	m := newJSModel(t, phi, p, st)
 	x0 := m.start()
-	fit, err := estimators.Maximize(m.logLik, nil, x0)
+	fit, err := estimators.Maximize(m.logLik, m.grad, x0)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", name, err)
 	}
@@ -317,6 +319,166 @@ func (m *jsModel) logLik(x []float64) float64 {
 	return ll
 }
 
+// grad is the analytic gradient of logLik with respect to the working
+// parameters, by reverse accumulation through the recursions for psi and
+// chi:
+//
+//	Gψ_j = u_j/ψ_j - (N-U) p_j/(1-S) + Gψ_{j+1} (1-p_j) phi_j
+//	Gχ_j = r_j/χ_j + Gχ_{j-1} phi_{j-1} (1-p_j)
+//
+// (S = Σ ψ_j p_j, r_j the animals last released at j), from which the
+// derivatives for b, p, phi and N follow by the chain rule.
+func (m *jsModel) grad(g, x []float64) {
+	t := m.t
+	phi := make([]float64, t-1)
+	p := make([]float64, t)
+	b := make([]float64, t)
+	n := m.params(x, phi, p, b)
+	st := &m.st
+	psi := make([]float64, t)
+	psi[0] = b[0]
+	for j := 0; j < t-1; j++ {
+		psi[j+1] = psi[j]*(1-p[j])*phi[j] + b[j+1]
+	}
+	chi := make([]float64, t)
+	chi[t-1] = 1
+	for j := t - 2; j >= 0; j-- {
+		chi[j] = 1 - phi[j] + phi[j]*(1-p[j+1])*chi[j+1]
+	}
+	seen := 0.0
+	for j := 0; j < t; j++ {
+		seen += psi[j] * p[j]
+	}
+	unseen := n - m.u
+	w := 0.0 // (N-U)/(1-S)
+	if unseen > 0 {
+		w = unseen / (1 - seen)
+	}
+	gPsi := make([]float64, t)
+	for j := t - 1; j >= 0; j-- {
+		gPsi[j] = ratio(st.u[j], psi[j]) - w*p[j]
+		if j < t-1 {
+			gPsi[j] += gPsi[j+1] * (1 - p[j]) * phi[j]
+		}
+	}
+	gChi := make([]float64, t)
+	for j := 0; j < t; j++ {
+		gChi[j] = ratio(st.released[j], chi[j])
+		if j > 0 {
+			gChi[j] += gChi[j-1] * phi[j-1] * (1 - p[j])
+		}
+	}
+	for i := range g {
+		g[i] = 0
+	}
+	// N = U + exp(x0).
+	g[0] = (mathext.Digamma(n+1) - mathext.Digamma(unseen+1) + math.Log(1-seen)) * (n - m.u)
+	// b: softmax with b_0 as reference; dlnL/db_j = Gψ_j.
+	sb := 0.0
+	for j := 0; j < t; j++ {
+		sb += b[j] * gPsi[j]
+	}
+	for j := 1; j < t; j++ {
+		g[m.oEta+j-1] = b[j] * (gPsi[j] - sb)
+	}
+	for j := 0; j < t; j++ {
+		d := ratio(st.n[j], p[j]) - ratio(st.miss[j], 1-p[j]) - w*psi[j]
+		if j < t-1 {
+			d -= gPsi[j+1] * psi[j] * phi[j]
+		}
+		if j > 0 {
+			d -= gChi[j-1] * phi[j-1] * chi[j]
+		}
+		g[m.oP+m.pIndex(j)] += d * p[j] * (1 - p[j])
+	}
+	for j := 0; j < t-1; j++ {
+		d := ratio(st.alive[j], phi[j]) + gPsi[j+1]*psi[j]*(1-p[j]) + gChi[j]*(-1+(1-p[j+1])*chi[j+1])
+		k := 0
+		if m.phiS == Time {
+			k = j
+		}
+		g[m.oPhi+k] += d * phi[j] * (1 - phi[j])
+	}
+}
+
+// reducedCov inverts the observed information over the working
+// parameters that are not at the edge of their range (a probability
+// within 5e-5 of 0 or 1, an entry share below 1e-7, N within 1e-6 of U),
+// holding those fixed, as is commonly done for boundary estimates. It
+// returns the full-size covariance with zero rows for the fixed ones and
+// their names, or nil when nothing is at the edge or the rest is still
+// singular.
+func (m *jsModel) reducedCov(x []float64) (*mat.SymDense, []string) {
+	phi := make([]float64, m.t-1)
+	p := make([]float64, m.t)
+	b := make([]float64, m.t)
+	m.params(x, phi, p, b)
+	var free []int
+	var fixed []string
+	for i := range x {
+		at := false
+		name := ""
+		switch {
+		case i == 0:
+			at, name = math.Exp(x[0]) < 1e-6, "N"
+		case i < m.oPhi:
+			at, name = b[i] < 1e-7, fmt.Sprintf("b[%d]", i)
+		case i < m.oP:
+			at = math.Abs(x[i]) > 9.9
+			name = "phi"
+			if m.phiS == Time {
+				name = fmt.Sprintf("phi[%d]", i-m.oPhi+1)
+			}
+		default:
+			at = math.Abs(x[i]) > 9.9
+			name = "p"
+			if m.pS == Time {
+				name = fmt.Sprintf("p[%d]", i-m.oP+2)
+			}
+		}
+		if at {
+			fixed = append(fixed, name)
+		} else {
+			free = append(free, i)
+		}
+	}
+	if len(fixed) == 0 || len(free) == 0 {
+		return nil, nil
+	}
+	z := append([]float64(nil), x...)
+	sub := func(y []float64) float64 {
+		for k, i := range free {
+			z[i] = y[k]
+		}
+		return m.logLik(z)
+	}
+	y := make([]float64, len(free))
+	for k, i := range free {
+		y[k] = x[i]
+	}
+	inv := estimators.InverseInformation(sub, y)
+	if inv == nil {
+		return nil, nil
+	}
+	full := mat.NewSymDense(len(x), nil)
+	for a, i := range free {
+		for b2, j := range free {
+			if b2 >= a {
+				full.SetSym(i, j, inv.At(a, b2))
+			}
+		}
+	}
+	return full, fixed
+}
+
+// ratio is c/v with 0/0 = 0 (a count of zero contributes nothing).
+func ratio(c, v float64) float64 {
+	if c == 0 {
+		return 0
+	}
+	return c / v
+}
+
 // jsXlogy is x ln y with 0 ln 0 = 0, and -Inf for x > 0 at y <= 0.
 func jsXlogy(x, y float64) float64 {
 	if x == 0 {
@@ -427,7 +589,12 @@ func (m *jsModel) result(name string, fit *estimators.Fit) *JSMLResult {
 	}
 	if fit.Cov == nil {
 		res.Boundary = true
-		res.Warnings = append(res.Warnings, "the information matrix is singular at the maximum (an entry share or probability is at 0 or 1, or a parameter is not identifiable): standard errors are not available")
+		if cov, fixed := m.reducedCov(fit.X); cov != nil {
+			fit.Cov = cov
+			res.Warnings = append(res.Warnings, fmt.Sprintf("the information matrix is singular at the maximum because of estimates at the edge of their range (%s); standard errors are computed with these held fixed, so they understate the uncertainty", strings.Join(fixed, ", ")))
+		} else {
+			res.Warnings = append(res.Warnings, "the information matrix is singular at the maximum (an entry share or probability is at 0 or 1, or a parameter is not identifiable): standard errors are not available")
+		}
 	}
 	qs := m.quantities()
 	est, nSuper := m.evaluate(fit.X, qs)

@@ -123,7 +123,7 @@ func TestJSMLLocalMaximum(t *testing.T) {
 	for _, s := range [][2]Structure{{Constant, Constant}, {Time, Constant}, {Constant, Time}, {Time, Time}} {
 		st := jsStats(h)
 		m := newJSModel(h.Occasions(), s[0], s[1], st)
-		fit, err := estimators.Maximize(m.logLik, nil, m.start())
+		fit, err := estimators.Maximize(m.logLik, m.grad, m.start())
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -133,6 +133,36 @@ func TestJSMLLocalMaximum(t *testing.T) {
 				x[i] += d
 				if v := m.logLik(x); v > fit.LogLik+1e-9 {
 					t.Errorf("phi(%s) p(%s): moving x[%d] by %g raises lnL from %.6f to %.6f", s[0], s[1], i, d, fit.LogLik, v)
+				}
+			}
+		}
+	}
+}
+
+// TestJSMLGradient compares the analytic gradient with central finite
+// differences at random points.
+func TestJSMLGradient(t *testing.T) {
+	h := jsmlReferenceSim()
+	h.Removed[3] = true // make sure a loss on capture is in the data
+	rng := rand.New(rand.NewPCG(4, 4))
+	for _, s := range [][2]Structure{{Constant, Constant}, {Time, Constant}, {Constant, Time}, {Time, Time}} {
+		m := newJSModel(h.Occasions(), s[0], s[1], jsStats(h))
+		for trial := 0; trial < 5; trial++ {
+			x := m.start()
+			for i := range x {
+				x[i] += rng.NormFloat64() * 0.5
+			}
+			g := make([]float64, len(x))
+			m.grad(g, x)
+			for i := range x {
+				const d = 1e-6
+				xp := append([]float64(nil), x...)
+				xm := append([]float64(nil), x...)
+				xp[i] += d
+				xm[i] -= d
+				num := (m.logLik(xp) - m.logLik(xm)) / (2 * d)
+				if math.Abs(num-g[i]) > 1e-4*math.Max(1, math.Abs(num)) {
+					t.Errorf("phi(%s) p(%s) x[%d]: analytic %.8g, numeric %.8g", s[0], s[1], i, g[i], num)
 				}
 			}
 		}
@@ -249,6 +279,27 @@ func TestJSMLModelsAndSelection(t *testing.T) {
 	if sel3.CriterionName != "QAICc" {
 		t.Errorf("c-hat 3 gives %s", sel3.CriterionName)
 	}
+}
+
+// TestJSMLBoundarySE: nobody enters between occasions 2 and 3, so that
+// entry share is estimated at 0; the fit is flagged as a boundary and the
+// other parameters still get standard errors, computed with it held fixed.
+func TestJSMLBoundarySE(t *testing.T) {
+	rng := rand.New(rand.NewPCG(6, 6))
+	h, _ := gofSimulate(rng, gofSim{k: 6, entries: []int{800, 300, 0, 300, 300, 300}, phi: constSlice(5, 0.8), p: constSlice(6, 0.5)})
+	r, err := JollySeberML(h, Constant, Constant)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b2, _ := r.Result.Param("b[2]")
+	phi, _ := r.Result.Param("phi")
+	if b2.Estimate > 0.01 {
+		t.Fatalf("b[2] = %g is not at the boundary with this seed: the test needs a boundary fit", b2.Estimate)
+	}
+	if !r.Result.Boundary || phi.SE <= 0 || r.Superpopulation.SE <= 0 {
+		t.Errorf("boundary %v, SE(phi) %g, SE(N) %g; want a flagged boundary and positive SEs", r.Result.Boundary, phi.SE, r.Superpopulation.SE)
+	}
+	t.Logf("b[2] = %.3g; warnings: %v", b2.Estimate, r.Result.Warnings)
 }
 
 func TestJSMLBadInput(t *testing.T) {
