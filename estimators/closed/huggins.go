@@ -327,6 +327,9 @@ func (e *hugginsEval) eval(x []float64, g []float64) float64 {
 			g[i] = 0
 		}
 	}
+	if !e.time {
+		return e.evalConstant(x, g)
+	}
 	v := 0.0
 	for ri := range e.rows {
 		r := &e.rows[ri]
@@ -368,6 +371,36 @@ func (e *hugginsEval) eval(x []float64, g []float64) float64 {
 			if e.time && j > 0 {
 				g[e.nc+j] += d
 			}
+		}
+	}
+	return v
+}
+
+// evalConstant is eval without time effects: p_i is the same on every
+// occasion, so each row costs O(1): with k captures out of a available
+// occasions, ℓ_i = k η_i − a softplus(η_i) − ln(1 − (1−p_i)^t) and
+// ∂ℓ_i/∂η_i = k − a p_i − t p_i Q_i/(1 − Q_i).
+func (e *hugginsEval) evalConstant(x []float64, g []float64) float64 {
+	v := 0.0
+	tf := float64(e.t)
+	for ri := range e.rows {
+		r := &e.rows[ri]
+		eta := x[0]
+		for c := 0; c < e.nc; c++ {
+			eta += x[1+c] * r.z[c]
+		}
+		sp := softplus(eta)
+		lq := -tf * sp
+		k, a := float64(len(r.caughtAt)), float64(r.avail)
+		v += r.count * (k*eta - a*sp - math.Log(-math.Expm1(lq)))
+		if g == nil {
+			continue
+		}
+		p := estimators.Expit(eta)
+		d := r.count * (k - a*p - tf*p*math.Exp(lq)/-math.Expm1(lq))
+		g[0] += d
+		for c := 0; c < e.nc; c++ {
+			g[1+c] += d * r.z[c]
 		}
 	}
 	return v

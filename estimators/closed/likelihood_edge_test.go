@@ -222,6 +222,8 @@ func TestAnalyticGradients(t *testing.T) {
 		y = append(y, 0.1*float64(j%4)-0.15)
 	}
 	checkGradient(t, "Huggins", ev.ll, ev.grad, y)
+	ev = hugginsTestEval(t, h, []string{"male", "mass"}, false)
+	checkGradient(t, "Huggins without time effects", ev.ll, ev.grad, y[:3])
 }
 
 func checkGradient(t *testing.T, name string, f func([]float64) float64, grad func(g, x []float64), x []float64) {
