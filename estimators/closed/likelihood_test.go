@@ -157,9 +157,6 @@ func TestLikelihoodAgainstScipy(t *testing.T) {
 	}
 	for _, set := range sets {
 		for _, want := range set.want {
-			if set.name == "cottontail frequencies" && want.Model == "Mb" {
-				continue // Mb depends on the order of captures, which the frequencies do not record
-			}
 			t.Run(set.name+"/"+want.Model, func(t *testing.T) {
 				b := builders[want.Model]
 				m, _, err := b.build(set.h)

@@ -332,7 +332,7 @@ def main():
     out["histories_with_losses"] = [fit_full(m, d_lost) for m in ["M0", "Mt", "Mb", "Mh", "Mth", "Mtb"]]
     C = read_cottontail()
     d_cott = Data(C, np.zeros(len(C), dtype=bool))
-    out["cottontail"] = [fit_full(m, d_cott) for m in ["M0", "Mh", "Mb"]]
+    out["cottontail"] = [fit_full(m, d_cott) for m in ["M0", "Mh"]]
     nolost = np.zeros(len(X), dtype=bool)
     out["huggins"] = [
         dict(covariates=["male", "mass"], time=False, lost=False, **huggins(X, nolost, [male, mass], False)),
