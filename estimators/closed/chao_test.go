@@ -2,6 +2,7 @@ package closed
 
 import (
 	"errors"
+	"fmt"
 	"math"
 	"os"
 	"strings"
@@ -124,4 +125,16 @@ func readHistoryCSVForTest(t *testing.T, path string) *estimators.Histories {
 		h.Caught = append(h.Caught, row)
 	}
 	return h
+}
+
+func ExampleChaoMh() {
+	// Capture frequencies f_1..f_4 over four occasions (invented). By hand:
+	// N = 48 + 30²/24 = 85.5; var = 12(2.5⁴/4 + 2.5³ + 2.5²/2) = 342.2.
+	r, err := ChaoMh(Frequencies{30, 12, 5, 1})
+	if err != nil {
+		panic(err)
+	}
+	fmt.Printf("N = %.1f, SE %.1f, 95%% CI (%.1f, %.1f)\n", r.N.Estimate, r.N.SE, r.N.Low, r.N.High)
+	// Output:
+	// N = 85.5, SE 18.5, 95% CI (63.0, 141.6)
 }

@@ -2,6 +2,7 @@ package closed
 
 import (
 	"errors"
+	"fmt"
 	"math"
 	"strings"
 	"testing"
@@ -150,4 +151,59 @@ func TestTableCovariates(t *testing.T) {
 	if rep.ConditionalAveragedN == nil || rep.AveragedN != nil {
 		t.Errorf("averages: %+v %+v", rep.AveragedN, rep.ConditionalAveragedN)
 	}
+}
+
+// BenchmarkTable is the whole model table (M0, Mt, Mb, Mh, Mth, Mtb,
+// Huggins with and without the mass covariate, jackknife, Chao, Schnabel,
+// Schumacher-Eschmeyer) on the ~10,000-animal, 15-occasion population of
+// BenchmarkM0; report it as a ratio to BenchmarkM0 from the same run.
+func BenchmarkTable(b *testing.B) {
+	h := benchHistories()
+	b.ReportMetric(float64(h.Animals()), "animals")
+	b.ResetTimer()
+	for b.Loop() {
+		rep, err := Table(h, TableOptions{})
+		if err != nil {
+			b.Fatal(err)
+		}
+		for _, r := range rep.Rows {
+			if r.Result == nil {
+				b.Fatalf("%s: %s", r.ID, r.Error)
+			}
+		}
+	}
+}
+
+// BenchmarkTableNoLikelihood is the part of the table without a
+// likelihood (jackknife, Chao Mh/Mt/Mth, Schnabel, Schumacher-Eschmeyer).
+func BenchmarkTableNoLikelihood(b *testing.B) {
+	h := benchHistories()
+	opts := TableOptions{Models: []string{"jackknife", "chao-mh", "chao-mt", "chao-mth", "schnabel", "schumacher-eschmeyer"}}
+	b.ResetTimer()
+	for b.Loop() {
+		if _, err := Table(h, opts); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
+
+func ExampleTable() {
+	// Five invented animals over four occasions.
+	h := &estimators.Histories{Caught: [][]bool{
+		{true, true, false, true},
+		{true, false, false, false},
+		{false, true, true, false},
+		{false, false, true, true},
+		{false, true, false, false},
+	}}
+	rep, err := Table(h, TableOptions{Models: []string{"chao-mh", "schnabel"}})
+	if err != nil {
+		panic(err)
+	}
+	for _, r := range rep.Rows {
+		fmt.Printf("%s: N = %.2f\n", r.Name, r.Result.N.Estimate)
+	}
+	// Output:
+	// Chao Mh: N = 6.00
+	// Schnabel (Chapman +1): N = 5.00
 }

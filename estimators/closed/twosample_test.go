@@ -3,6 +3,7 @@ package closed
 import (
 	"encoding/json"
 	"errors"
+	"fmt"
 	"math"
 	"os"
 	"testing"
@@ -229,4 +230,15 @@ func checkN(t *testing.T, r *estimators.Result, caught int) {
 	if n.Kind == "" || len(r.Assumptions) == 0 {
 		t.Fatalf("%s: missing interval kind or assumptions", r.Method)
 	}
+}
+
+func ExampleChapman() {
+	// Invented counts: 120 marked, 95 in the second sample, 28 of them marked.
+	r, err := Chapman(TwoSample{M: 120, C: 95, R: 28}, TwoSampleCIAuto)
+	if err != nil {
+		panic(err)
+	}
+	fmt.Printf("N = %.1f, SE %.1f, 95%% CI (%.1f, %.1f), %s\n", r.N.Estimate, r.N.SE, r.N.Low, r.N.High, r.N.Kind)
+	// Output:
+	// N = 399.6, SE 53.3, 95% CI (299.0, 564.8), binomial on the recapture proportion
 }
