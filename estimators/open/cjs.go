@@ -202,14 +202,16 @@ func CJSGroups(ms []MArray, groups []string, phi, p Structure) (*estimators.Resu
 		if math.IsNaN(se) || math.IsInf(se, 0) {
 			se = 0
 		}
+		if est < 1e-6 || est > 1-1e-6 {
+			// A Wald-type SE means nothing at the edge of the range.
+			res.Boundary = true
+			res.Warnings = append(res.Warnings, fmt.Sprintf("%s is estimated at the boundary (%.6f): no standard error or interval is given", named.Name, est))
+			se = 0
+		}
 		named.SE = se
 		named.Interval = estimators.LogitInterval(est, se)
 		if se == 0 {
 			named.Interval.Kind = estimators.CINone
-		}
-		if est < 1e-6 || est > 1-1e-6 {
-			res.Boundary = true
-			res.Warnings = append(res.Warnings, fmt.Sprintf("%s is estimated at the boundary (%.6f); its SE and interval are not reliable", named.Name, est))
 		}
 		res.Parameters = append(res.Parameters, named)
 	}

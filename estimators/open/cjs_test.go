@@ -309,8 +309,11 @@ func TestCJSBoundary(t *testing.T) {
 		if _, err := json.Marshal(r); err != nil {
 			t.Errorf("%s: %v", spec, err)
 		}
-		if spec == (ModelSpec{Constant, Constant}) && !r.Boundary {
-			t.Errorf("%s: p = %.6f not flagged at the boundary", spec, param(t, r, "p").Estimate)
+		if spec == (ModelSpec{Constant, Constant}) {
+			p := param(t, r, "p")
+			if !r.Boundary || p.SE != 0 || p.Kind != estimators.CINone || len(r.Warnings) == 0 {
+				t.Errorf("%s: p = %+v not flagged at the boundary", spec, p)
+			}
 		}
 	}
 }

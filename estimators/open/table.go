@@ -187,6 +187,11 @@ func (tab *ModelTable) average() {
 			d := x.est - mean
 			se += x.w / wsum * math.Sqrt(x.se*x.se+d*d)
 		}
+		if se < 1e-8 {
+			// Every contributing model has this parameter at a boundary
+			// (SE 0) and they agree: no interval can be given.
+			se = 0
+		}
 		out.Identifiable = true
 		out.Estimate, out.SE = mean, se
 		out.Interval = estimators.LogitInterval(mean, se)
