@@ -127,4 +127,20 @@ func TestCoverageMh(t *testing.T) {
 	if failed > reps/4 {
 		t.Errorf("%d of %d Mh fits failed", failed, reps)
 	}
+
+	// Continuous heterogeneity, which the two-point mixture only
+	// approximates: each animal's p is drawn from a logit-normal
+	// distribution (logit p ~ Normal(−1.2, 1)), median p about 0.23.
+	drawCont := func(rng *rand.Rand) *estimators.Histories {
+		p := make([]float64, n)
+		for i := range p {
+			p[i] = estimators.Expit(-1.2 + rng.NormFloat64())
+		}
+		return simulate(rng, n, occ, func(i, _ int, _ bool) float64 { return p[i] }, nil)
+	}
+	share, failed, meanN = coverage(t, reps, n, drawCont, Mh, 17)
+	t.Logf("Mh under logit-normal heterogeneity (N=%d, t=%d, logit p ~ N(-1.2, 1)): coverage %.3f over %d fits (%d could not be fitted: N unbounded), mean N̂ %.1f", n, occ, share, reps-failed, failed, meanN)
+	if share < 0.5 {
+		t.Errorf("Mh coverage %.3f is far below anything plausible", share)
+	}
 }
