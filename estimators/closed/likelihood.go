@@ -9,9 +9,9 @@ package closed
 //
 //   - N enters through f0 = N − Mt1 (animals never caught), worked on the
 //     log scale, s = ln f0, so the optimiser needs no bound and N >= Mt1.
-//     N is continuous: the combinatorial term is
-//     lnΓ(N+1) − lnΓ(N−Mt1+1) (Otis et al. 1978, eq. for the general
-//     likelihood; Pledger 2000, eq. 2).
+//     N is continuous: the combinatorial term N!/(N−Mt1)! of the
+//     likelihoods of Otis et al. (1978) and Pledger (2000) is written
+//     lnΓ(N+1) − lnΓ(N−Mt1+1).
 //   - Probabilities are on the logit scale.
 //   - LogLik is the log-likelihood of the observed individual capture
 //     histories, lnL = lnΓ(N+1) − lnΓ(N−Mt1+1) + Σ_ω n_ω ln π_ω
@@ -24,11 +24,12 @@ package closed
 //     a different likelihood and is not comparable with them.
 //   - SampleSize for AICc is Mt1, the number of distinct animals caught:
 //     each animal's capture history is one independent multinomial
-//     outcome. Burnham & Anderson (2002, sec. 2.4 and 7.7) discuss how
-//     the effective sample size is chosen and note it is not always
-//     clear-cut; t·Mt1 (one Bernoulli trial per animal and occasion) is the
-//     other choice seen in practice. Mt1 is the more conservative (a
-//     larger small-sample penalty).
+//     outcome. Burnham & Anderson (2002) discuss how the effective sample
+//     size is chosen and that it is not always clear-cut; t·Mt1 (one
+//     Bernoulli trial per animal and occasion) is the other choice seen in
+//     practice. Mt1 is the more conservative (a larger small-sample
+//     penalty). Where n − K − 1 <= 0 AICc is undefined: Result.AICc is
+//     then 0 (left out of JSON) with a warning.
 
 import (
 	"fmt"
@@ -266,7 +267,6 @@ var (
 	refOtis     = "Otis, D.L., Burnham, K.P., White, G.C. & Anderson, D.R. (1978) Statistical inference from capture data on closed animal populations. Wildlife Monographs 62."
 	refPledger  = "Pledger, S. (2000) Unified maximum likelihood estimates for closed capture-recapture models using mixtures. Biometrics 56:434-442."
 	refHuggins  = "Huggins, R.M. (1989) On the statistical analysis of capture experiments. Biometrika 76:133-140."
-	refBurnham  = "Burnham, K.P. & Anderson, D.R. (2002) Model selection and multimodel inference, 2nd ed. Springer."
 	refVenzon   = "Venzon, D.J. & Moolgavkar, S.H. (1988) A method for computing profile-likelihood-based confidence intervals. Applied Statistics 37:87-94."
 	refDarroch  = "Darroch, J.N. (1958) The multiple-recapture census I: estimation of a closed population. Biometrika 45:343-359."
 	assumeClose = "The population is closed: no births, deaths, immigration or emigration between the first and last occasion (apart from animals recorded as lost on capture)."

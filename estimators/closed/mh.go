@@ -69,7 +69,7 @@ func mhModel(h *estimators.Histories) (*model, [][]float64, error) {
 			assumeClose, assumeMarks, assumeIndep,
 			"Animals differ in catchability: each belongs to one of two hidden classes with its own capture probability, constant over occasions and unchanged by being caught (a two-point mixture standing in for any spread of catchability).",
 		},
-		references: []string{refOtis, refPledger},
+		references: []string{refOtis, refPledger, refVenzon},
 	}
 	m.profile = func(f0 float64, warm []float64) (float64, []float64, error) {
 		return profileByOptimisation(m, f0, warm)
@@ -142,7 +142,7 @@ func mthModel(h *estimators.Histories) (*model, [][]float64, error) {
 			assumeClose, assumeMarks, assumeIndep,
 			"Capture probability varies between occasions and between animals: each animal belongs to one of two hidden classes, and the classes differ by the same amount on the logit scale on every occasion; being caught does not change it.",
 		},
-		references: []string{refOtis, refPledger},
+		references: []string{refOtis, refPledger, refVenzon},
 	}
 	m.profile = func(f0 float64, warm []float64) (float64, []float64, error) {
 		return profileByOptimisation(m, f0, warm)

@@ -20,7 +20,10 @@ import (
 //
 // N's SE comes from the observed information on the ln(N − Mt1) scale by
 // the delta method; its 95% interval is the profile-likelihood interval,
-// never below Mt1. Degenerate cases: no recaptures gives
+// never below Mt1. LogLik leaves out the multinomial constant over
+// distinct histories, the same in every full-likelihood model here, so
+// their AICc values compare; SampleSize for AICc is Mt1 (see
+// likelihood.go for both choices). Degenerate cases: no recaptures gives
 // ErrNoRecaptures; fewer than 2 occasions ErrTooFewOccasions; every animal
 // caught every time a boundary result N = Mt1, p = 1.
 func M0(h *estimators.Histories) (*estimators.Result, error) {
@@ -48,7 +51,7 @@ func m0Model(h *estimators.Histories) (*model, [][]float64, error) {
 			assumeClose, assumeMarks, assumeIndep,
 			"Every animal has the same capture probability on every occasion: no change over time, no response to being caught, no differences between animals.",
 		},
-		references: []string{refOtis},
+		references: []string{refOtis, refVenzon},
 	}
 	m.profile = func(f0 float64, _ []float64) (float64, []float64, error) {
 		f := fc + tf*f0
@@ -103,7 +106,7 @@ func mtModel(h *estimators.Histories) (*model, [][]float64, error) {
 			assumeClose, assumeMarks, assumeIndep,
 			"Capture probability may differ between occasions but is the same for every animal on a given occasion, whether or not it was caught before.",
 		},
-		references: []string{refOtis, refDarroch},
+		references: []string{refOtis, refDarroch, refVenzon},
 	}
 	m.profile = func(f0 float64, _ []float64) (float64, []float64, error) {
 		v := nTerm(st.mt1, f0)
@@ -170,7 +173,7 @@ func mbModel(h *estimators.Histories) (*model, [][]float64, error) {
 			assumeClose, assumeMarks, assumeIndep,
 			"Every animal has the same first-capture probability p on every occasion; after its first capture its recapture probability is c, the same for all animals and occasions (a lasting response to being caught).",
 		},
-		references: []string{refOtis},
+		references: []string{refOtis, refVenzon},
 	}
 	c := recaps / recapTrials
 	m.profile = func(f0 float64, _ []float64) (float64, []float64, error) {
@@ -192,8 +195,8 @@ func mbModel(h *estimators.Histories) (*model, [][]float64, error) {
 //
 //	logit c_j = logit p_j + b,
 //
-// an additive behaviour effect of the kind Huggins (1989) fitted as a
-// covariate. Then
+// the form a "caught before" covariate takes in the logistic models of
+// Huggins (1989) (from memory). Then
 //
 //	lnL = lnΓ(N+1) − lnΓ(N−Mt1+1) + Σ_j [u_j ln p_j + (N − M_{j+1}) ln(1−p_j)]
 //	      + Σ_j [m_j ln c_j + (K_j − m_j) ln(1−c_j)]
@@ -247,7 +250,7 @@ func mtbModel(h *estimators.Histories) (*model, [][]float64, error) {
 			assumeClose, assumeMarks, assumeIndep,
 			"First-capture probability may differ between occasions; once caught, an animal's capture probability shifts by the same amount on the logit scale on every later occasion (a lasting response to being caught, constant over time). The same for every animal.",
 		},
-		references: []string{refOtis, refHuggins},
+		references: []string{refOtis, refHuggins, refVenzon},
 	}
 	m.profile = func(f0 float64, warm []float64) (float64, []float64, error) {
 		return profileByOptimisation(m, f0, warm)
