@@ -101,7 +101,8 @@ func CJS(m MArray, phi, p Structure) (*estimators.Result, error) {
 // two factors are reported with Identifiable false, Estimate 0 and no SE,
 // so K (Result.Params) counts the product once: 2(T-1)-1 for phi(t) p(t).
 // The sample size for AICc is the number of releases Σ_{i<T} R_i (common
-// practice).
+// practice); when it is K + 1 or less AICc is undefined and Result.AICc is
+// 0 with a warning.
 //
 // Degenerate cases: fewer than 3 occasions is ErrTooFewOccasions; no
 // released animal ever caught again is ErrNoRecaptures; a parameter whose
@@ -190,6 +191,10 @@ func CJSGroups(ms []MArray, groups []string, phi, p Structure) (*estimators.Resu
 		References:    cjsReferences(),
 	}
 	res.AICc = estimators.AICc(res.LogLik, res.Params, res.SampleSize)
+	if math.IsInf(res.AICc, 0) {
+		res.AICc = 0
+		res.Warnings = append(res.Warnings, fmt.Sprintf("AICc is undefined (reported as 0): %d releases are too few for %d parameters", res.SampleSize, res.Params))
+	}
 	if fit.Cov == nil {
 		res.Boundary = true
 		res.Warnings = append(res.Warnings, "the information matrix is singular at the maximum (a parameter is at 0 or 1 or not identifiable): standard errors are not available")

@@ -1,11 +1,17 @@
 package open
 
 import (
+	"errors"
 	"fmt"
 	"math"
 
 	"tagtally/estimators"
 )
+
+// ErrTooFewReleases: a model has so many parameters for the number of
+// releases that AICc is undefined (n - K - 1 <= 0), so it cannot be
+// ranked. CJSTable lists such models in Failed.
+var ErrTooFewReleases = errors.New("too few releases to rank the model by AICc")
 
 // ModelSpec names one CJS model by the structure of phi and p.
 type ModelSpec struct {
@@ -63,8 +69,9 @@ type ModelTable struct {
 // With cHat > 1 (an overdispersion factor from a goodness-of-fit test),
 // every model's SEs are multiplied by sqrt(cHat) and its intervals rebuilt
 // before averaging (Burnham & Anderson 2002, sec. 2.5; Lebreton et al.
-// 1992). A model that cannot be fitted is listed in Failed; the table is an
-// error only when no model can be fitted.
+// 1992). A model that cannot be fitted, or has too few releases for its
+// parameters to be ranked (ErrTooFewReleases), is listed in Failed; the
+// table is an error only when no model is left.
 func CJSTable(ms []MArray, groups []string, models []ModelSpec, cHat float64) (*ModelTable, error) {
 	if len(ms) == 0 {
 		return nil, fmt.Errorf("CJS model table: %w: no m-array", estimators.ErrNoData)
@@ -93,6 +100,14 @@ func CJSTable(ms []MArray, groups []string, models []ModelSpec, cHat float64) (*
 			r, err = CJSGroups(ms, groups, spec.Phi, spec.P)
 		}
 		if err != nil {
+			if firstErr == nil {
+				firstErr = err
+			}
+			tab.Failed = append(tab.Failed, err.Error())
+			continue
+		}
+		if math.IsInf(estimators.QAICc(r.LogLik, r.Params, r.SampleSize, cHat), 0) {
+			err := fmt.Errorf("CJS %s: %w: %d releases for %d parameters", spec, ErrTooFewReleases, r.SampleSize, r.Params)
 			if firstErr == nil {
 				firstErr = err
 			}
@@ -149,6 +164,7 @@ func lookup(r *estimators.Result, base, g string, occ int) (estimators.Named, bo
 func (tab *ModelTable) average() {
 	t := tab.Occasions
 	left := map[string]bool{}
+	var edge []string
 	one := func(base, g string, occ int) {
 		name := fmt.Sprintf("%s[%d]", base, occ)
 		if g != "" {
@@ -187,10 +203,11 @@ func (tab *ModelTable) average() {
 			d := x.est - mean
 			se += x.w / wsum * math.Sqrt(x.se*x.se+d*d)
 		}
-		if se < 1e-8 {
-			// Every contributing model has this parameter at a boundary
-			// (SE 0) and they agree: no interval can be given.
+		if se < 1e-8 || mean < 1e-6 || mean > 1-1e-6 {
+			// The models put this parameter at (or next to) 0 or 1: a
+			// Wald-type interval means nothing there.
 			se = 0
+			edge = append(edge, name)
 		}
 		out.Identifiable = true
 		out.Estimate, out.SE = mean, se
@@ -207,6 +224,9 @@ func (tab *ModelTable) average() {
 		for j := 2; j <= t; j++ {
 			one("p", g, j)
 		}
+	}
+	if len(edge) > 0 {
+		tab.Warnings = append(tab.Warnings, fmt.Sprintf("averages of %v are at the boundary (0 or 1): no standard error or interval is given", edge))
 	}
 	if len(left) > 0 {
 		var names []string

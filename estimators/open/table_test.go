@@ -1,9 +1,11 @@
 package open
 
 import (
+	"encoding/json"
 	"errors"
 	"fmt"
 	"math"
+	"math/rand/v2"
 	"strings"
 	"testing"
 
@@ -165,4 +167,66 @@ func ExampleCJS() {
 	// phi = 0.560 (SE 0.025, 95% CI 0.511-0.609)
 	// p = 0.903 (SE 0.029, 95% CI 0.830-0.946)
 	// K = 2, AICc = 670.87
+}
+
+// TestRandomSmallStudies runs the estimators on many small random data
+// sets (fixed seed): every outcome is either a result that encodes as JSON
+// (so no NaN or Inf hides in it) or an error wrapping one of the package
+// sentinels; nothing panics.
+func TestRandomSmallStudies(t *testing.T) {
+	rng := rand.New(rand.NewPCG(99, 1))
+	sentinels := []error{estimators.ErrNoData, estimators.ErrNoRecaptures, estimators.ErrTooFewOccasions, estimators.ErrInvalidInput, estimators.ErrNotConverged, ErrTooFewReleases}
+	known := func(err error) bool {
+		for _, s := range sentinels {
+			if errors.Is(err, s) {
+				return true
+			}
+		}
+		return false
+	}
+	for k := 0; k < 300; k++ {
+		occ := 2 + rng.IntN(5)
+		h := &estimators.Histories{}
+		for a, n := 0, 1+rng.IntN(15); a < n; a++ {
+			row := make([]bool, occ)
+			row[rng.IntN(occ)] = true
+			for j := range row {
+				row[j] = row[j] || rng.Float64() < 0.3
+			}
+			h.Caught = append(h.Caught, row)
+			h.Removed = append(h.Removed, rng.Float64() < 0.1)
+			h.Groups = append(h.Groups, []string{"a", "b"}[rng.IntN(2)])
+		}
+		m, s, err := FromHistories(h)
+		if err != nil {
+			t.Fatalf("set %d: %v", k, err)
+		}
+		if js, err := JollySeber(s); err != nil {
+			if !known(err) {
+				t.Errorf("set %d: Jolly-Seber error %v", k, err)
+			}
+		} else if _, err := json.Marshal(js); err != nil {
+			t.Errorf("set %d: Jolly-Seber result does not encode: %v", k, err)
+		}
+		if tab, err := CJSTable([]MArray{m}, nil, nil, 0); err != nil {
+			if !known(err) {
+				t.Errorf("set %d: CJS error %v", k, err)
+			}
+		} else if _, err := json.Marshal(tab); err != nil {
+			t.Errorf("set %d: CJS table does not encode: %v", k, err)
+		}
+		names, ms, err := GroupMArrays(h)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(ms) > 1 {
+			if tab, err := CJSTable(ms, names, nil, 0); err != nil {
+				if !known(err) {
+					t.Errorf("set %d: CJS groups error %v", k, err)
+				}
+			} else if _, err := json.Marshal(tab); err != nil {
+				t.Errorf("set %d: CJS group table does not encode: %v", k, err)
+			}
+		}
+	}
 }
