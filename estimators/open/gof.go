@@ -34,6 +34,8 @@ const MinExpected = 2.0
 type GOFComponent struct {
 	// Test is one of Test3SR, Test3SM, Test2CT, Test2CL.
 	Test string `json:"test"`
+	// Group is the group label for GoodnessOfFitByGroup, "" otherwise.
+	Group string `json:"group,omitempty"`
 	// Occasion is the occasion i (1-based) the table is about.
 	Occasion int `json:"occasion"`
 	// Rows names the two rows of Observed, e.g. "previously marked" and
@@ -116,13 +118,23 @@ func (g *GOF) SelectionCHat() float64 {
 //	  Detects transients (newly marked animals less likely to return).
 //	TEST 3.SM_i (i = 2..k-2): animals released at i and seen again; same
 //	  rows; columns: occasion j = i+1..k at which next seen.
-//	TEST 2.CT_i (i = 2..k-2): animals seen before i and seen again after i
-//	  (so known alive at i); rows: caught at i vs not caught at i; columns:
-//	  next seen at i+1 vs next seen later. Detects trap-dependence
-//	  (trap-happy animals are more often next seen at i+1).
+//	TEST 2.CT_i (i = 2..k-2): animals released at or before i and seen
+//	  again after i (so known alive at i); rows: caught at i (newly or
+//	  previously marked) vs not caught at i; columns: next seen at i+1 vs
+//	  next seen later. Detects trap-dependence (trap-happy animals are
+//	  more often next seen at i+1).
 //	TEST 2.CL_i (i = 2..k-3): the rest of that table: the same animals that
 //	  were next seen after i+1; same rows; columns: occasion j = i+2..k at
 //	  which next seen.
+//
+// The row "caught at i" of TEST 2 pools newly and previously marked
+// animals, as the m-array form of TEST 2 does (releases at i of both
+// kinds; Burnham et al. 1987), while TEST 3.SM compares the two kinds: the
+// two comparisons then partition the information without overlap. (Had
+// TEST 2 kept only previously marked animals, the same animals would be
+// compared twice and the components would be positively correlated: in
+// our simulations the variance of the overall statistic rose from about
+// 2df to 2.4df and its 5% test rejected 6.8% of CJS data sets.)
 //
 // Each table gets Pearson's X² = Σ (O-E)²/E with E = row total × column
 // total / n and (r-1)(c-1) degrees of freedom; P from the chi-square
@@ -169,7 +181,71 @@ func GoodnessOfFit(h *estimators.Histories) (*GOF, error) {
 			g.Components = append(g.Components, tab.component(Test2CL, i))
 		}
 	}
+	g.finish()
+	return g, nil
+}
+
+// GoodnessOfFitByGroup runs the component tests separately in each group
+// of h.Groups (e.g. sex) and sums them, the usual way to test a model
+// with group effects, phi(g*t) p(g*t) (Burnham et al. 1987; Lebreton et
+// al. 1992): the combined result's components carry their Group, its
+// totals and c-hat are over every group's tested tables. The per-group
+// results are returned too, in sorted order of the labels (an empty label
+// is a group named "(none)"). Errors as for GoodnessOfFit, and
+// estimators.ErrInvalidInput when h.Groups is nil.
+func GoodnessOfFitByGroup(h *estimators.Histories) (*GOF, []*GOF, error) {
+	if err := h.Validate(); err != nil {
+		return nil, nil, fmt.Errorf("goodness of fit by group: %w", err)
+	}
+	if h.Groups == nil {
+		return nil, nil, fmt.Errorf("goodness of fit by group: %w: the histories have no group labels", estimators.ErrInvalidInput)
+	}
+	byGroup := map[string]*estimators.Histories{}
+	var names []string
+	for a, row := range h.Caught {
+		g := h.Groups[a]
+		if g == "" {
+			g = "(none)"
+		}
+		sub, ok := byGroup[g]
+		if !ok {
+			sub = &estimators.Histories{}
+			if h.Removed != nil {
+				sub.Removed = []bool{}
+			}
+			byGroup[g] = sub
+			names = append(names, g)
+		}
+		sub.Caught = append(sub.Caught, row)
+		if h.Removed != nil {
+			sub.Removed = append(sub.Removed, h.Removed[a])
+		}
+	}
+	sort.Strings(names)
+	all := &GOF{Method: "CJS goodness of fit by group: TEST 2 and TEST 3 components summed over groups"}
+	var per []*GOF
+	for _, name := range names {
+		g, err := GoodnessOfFit(byGroup[name])
+		if err != nil {
+			return nil, nil, fmt.Errorf("goodness of fit, group %q: %w", name, err)
+		}
+		for i := range g.Components {
+			g.Components[i].Group = name
+		}
+		per = append(per, g)
+		all.Components = append(all.Components, g.Components...)
+	}
+	all.finish()
+	return all, per, nil
+}
+
+// finish sorts the components and fills the totals, c-hat, the
+// recommendation, assumptions, warnings and references.
+func (g *GOF) finish() {
 	sort.SliceStable(g.Components, func(a, b int) bool {
+		if g.Components[a].Group != g.Components[b].Group {
+			return g.Components[a].Group < g.Components[b].Group
+		}
 		ra, rb := componentRank(g.Components[a].Test), componentRank(g.Components[b].Test)
 		if ra != rb {
 			return ra < rb
@@ -202,7 +278,7 @@ func GoodnessOfFit(h *estimators.Histories) (*GOF, error) {
 		g.CHat = 1
 		g.Warnings = append(g.Warnings, "No component table could be tested (too few recaptures): goodness of fit is unknown and c-hat is set to 1.")
 		g.Recommendation = "Fit is untested; rank models by AICc but read them with care."
-		return g, nil
+		return
 	}
 	g.CHat = g.Overall.ChiSquare / float64(g.Overall.DF)
 	untested := 0
@@ -230,7 +306,6 @@ func GoodnessOfFit(h *estimators.Histories) (*GOF, error) {
 	if g.CT.DF > 0 && g.CT.P < 0.05 {
 		g.Warnings = append(g.Warnings, fmt.Sprintf("TEST 2.CT rejects (P = %.3g): animals caught at one occasion are more (trap-happy) or less (trap-shy) likely to be caught at the next; consider a trap-dependence model.", g.CT.P))
 	}
-	return g, nil
 }
 
 func componentRank(t string) int {
@@ -287,8 +362,8 @@ type gofCounts struct {
 //   - each release at c (not the loss) adds to 3.SR_c, and, when seen
 //     again at next, to 3.SM_c, in row "newly marked" when c is the first
 //     capture;
-//   - each capture c after the first that is followed by another at next
-//     adds to row "caught at i" of 2.CT_c (and 2.CL_c when next > c+1);
+//   - each capture c (from occasion 2) followed by another at next adds
+//     to row "caught at i" of 2.CT_c (and 2.CL_c when next > c+1);
 //   - each occasion i strictly between two consecutive captures adds to
 //     row "not caught at i" of 2.CT_i (and 2.CL_i when next > i+1).
 //
@@ -331,7 +406,7 @@ func gofCount(h *estimators.Histories) *gofCounts {
 			if next < 0 {
 				continue
 			}
-			if c > f && c <= k-3 {
+			if c >= 1 && c <= k-3 {
 				t.add2(c, 0, next)
 			}
 			for i := max(c+1, 1); i < next && i <= k-3; i++ {

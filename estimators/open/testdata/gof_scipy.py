@@ -107,7 +107,7 @@ def main():
             ct = np.zeros((2, 2), int)
             cl = np.zeros((2, max(k - i - 2, 0)), int)
             for c, f, l, rem in animals:
-                if f >= i:
+                if f > i:
                     continue
                 nxt = next_after(c, i)
                 if nxt < 0:
