@@ -37,7 +37,9 @@ import (
 	"sort"
 	"strconv"
 
+	"gonum.org/v1/gonum/diff/fd"
 	"gonum.org/v1/gonum/mathext"
+	"gonum.org/v1/gonum/optimize"
 
 	"tagtally/estimators"
 )
@@ -295,25 +297,56 @@ func fitModel(m *model, starts [][]float64, err error) (*estimators.Result, erro
 }
 
 // bestFit maximises from every start and returns the highest maximum.
+// With several starts, each is first climbed with gonum's BFGS alone (no
+// information matrix), and only the best point is handed to
+// estimators.Maximize, which converges at once there and adds the observed
+// information: one finite-difference Hessian instead of one per start.
 func bestFit(m *model, starts [][]float64) (*estimators.Fit, error) {
-	var best *estimators.Fit
-	var firstErr error
-	for _, x0 := range starts {
-		f, err := maximizeScaled(m.ll, m.grad, x0, float64(m.st.mt1))
-		if err != nil {
-			if firstErr == nil {
-				firstErr = err
+	scale := float64(m.st.mt1)
+	from := starts[0]
+	if len(starts) > 1 {
+		bestV := math.Inf(-1)
+		for _, x0 := range starts {
+			x, v, err := climb(m.ll, m.grad, x0, scale)
+			if err == nil && v > bestV {
+				from, bestV = x, v
 			}
-			continue
-		}
-		if best == nil || f.LogLik > best.LogLik {
-			best = f
 		}
 	}
-	if best == nil {
-		return nil, wrapMethod(m.method, firstErr)
+	f, err := maximizeScaled(m.ll, m.grad, from, scale)
+	if err != nil {
+		return nil, wrapMethod(m.method, err)
 	}
-	return best, nil
+	return f, nil
+}
+
+// climb maximises ll from x0 with gonum's BFGS on lnL/scale, returning the
+// point reached and lnL there, or an error when nothing finite was found.
+func climb(ll func([]float64) float64, grad func(g, x []float64), x0 []float64, scale float64) ([]float64, float64, error) {
+	negLL := func(x []float64) float64 {
+		v := ll(x)
+		if math.IsNaN(v) || math.IsInf(v, 0) {
+			return math.Inf(1)
+		}
+		return -v / scale
+	}
+	var g func(g, x []float64)
+	if grad != nil {
+		g = func(gr, x []float64) {
+			grad(gr, x)
+			for i := range gr {
+				gr[i] /= -scale
+			}
+		}
+	} else {
+		g = func(gr, x []float64) { fd.Gradient(gr, negLL, x, &fd.Settings{Formula: fd.Central}) }
+	}
+	res, err := optimize.Minimize(optimize.Problem{Func: negLL, Grad: g}, append([]float64(nil), x0...),
+		&optimize.Settings{GradientThreshold: 1e-6, MajorIterations: 2000}, &optimize.BFGS{})
+	if res == nil || math.IsInf(res.F, 0) || math.IsNaN(res.F) {
+		return nil, 0, fmt.Errorf("%w: %v", estimators.ErrNotConverged, err)
+	}
+	return res.X, -res.F * scale, nil
 }
 
 // maximizeScaled runs estimators.Maximize on lnL/scale (and its gradient)
