@@ -14,9 +14,10 @@ import (
 //	lnL(N, p) = lnΓ(N+1) − lnΓ(N−Mt1+1) + n. ln p + (T. − n. + t·f0) ln(1−p)
 //
 // (Otis et al. 1978, the M0 likelihood; the multinomial constant over
-// distinct histories is left out, as in every model here). The
-// maximum-likelihood N solves Mt1 = N[1 − (1 − n./(tN))^t] when nothing is
-// lost on capture. K = 2.
+// distinct histories is left out, as in every model here). With nothing
+// lost on capture, N̂ lies within one animal of the root of the published
+// equation Mt1 = N[1 − (1 − n./(tN))^t], which treats N as a whole number;
+// here N is continuous. K = 2.
 //
 // N's SE comes from the observed information on the ln(N − Mt1) scale by
 // the delta method; its 95% interval is the profile-likelihood interval,
@@ -69,8 +70,9 @@ func m0Model(h *estimators.Histories) (*model, [][]float64, error) {
 //
 // where n_j is the number caught on occasion j and a_j the number of caught
 // animals still available then (Mt1 unless some were lost on capture
-// earlier). Without losses the MLE of N solves Darroch's (1958) equation
-// 1 − Mt1/N = Π_j (1 − n_j/N). K = t + 1. An occasion on which nothing was
+// earlier). Without losses N̂ lies within one animal of the root of
+// Darroch's (1958) equation 1 − Mt1/N = Π_j (1 − n_j/N) (whole-number N
+// there, continuous N here). K = t + 1. An occasion on which nothing was
 // caught has p_j at 0, a boundary that is flagged.
 //
 // SE, interval and degenerate cases as for M0.
