@@ -36,6 +36,7 @@ import (
 	"math"
 	"sort"
 	"strconv"
+	"strings"
 
 	"gonum.org/v1/gonum/diff/fd"
 	"gonum.org/v1/gonum/mathext"
@@ -441,9 +442,19 @@ func (m *model) result(f *estimators.Fit) (*estimators.Result, error) {
 }
 
 // isProbabilityName reports whether a parameter name is a probability
-// (capture, recapture or class proportion) rather than a logit effect.
+// (capture, recapture or class proportion: "p", "c", "p[3]", "c[2]",
+// "p(class 1, ...)", "proportion in class 1") rather than an effect on the
+// logit scale.
 func isProbabilityName(name string) bool {
-	return len(name) > 0 && (name[0] == 'p' || name[0] == 'c')
+	if name == "p" || name == "c" {
+		return true
+	}
+	for _, prefix := range []string{"p[", "c[", "p(", "proportion"} {
+		if strings.HasPrefix(name, prefix) {
+			return true
+		}
+	}
+	return false
 }
 
 // boundaryAllCaught is the result when every animal was caught every time

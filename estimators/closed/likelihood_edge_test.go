@@ -247,3 +247,20 @@ func hugginsTestEval(t *testing.T, h *estimators.Histories, covariates []string,
 	}
 	return ev
 }
+
+// TestProbabilityNames: only probabilities are checked against the edges
+// of (0, 1); logit-scale effects may take any value.
+func TestProbabilityNames(t *testing.T) {
+	for name, want := range map[string]bool{
+		"p": true, "c": true, "p[3]": true, "c[2]": true,
+		"p(class 1, less catchable)": true, "p[1](class 2, more catchable)": true,
+		"proportion in class 1":                                      true,
+		"class difference δ (logit scale)":                           false,
+		"behaviour effect (logit scale, recapture vs first capture)": false,
+		"intercept (logit scale)":                                    false,
+	} {
+		if got := isProbabilityName(name); got != want {
+			t.Errorf("isProbabilityName(%q) = %v", name, got)
+		}
+	}
+}
