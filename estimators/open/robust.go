@@ -68,7 +68,7 @@ type RobustResult struct {
 //
 // This is the ad hoc two-stage approach of Pollock (1982), not the joint
 // likelihood of Kendall, Pollock & Brownie (1995) or Kendall, Nichols &
-// Hines (1997):
+// Hines (1997), which RobustDesignML fits (with M0 only within primaries):
 //
 //  1. Within each primary, the histories of the animals caught in it, on
 //     its secondary occasions, are fitted with closed.M0 and closed.Mh
@@ -116,31 +116,11 @@ func RobustDesignAdHoc(h *estimators.Histories, primary []int) (*RobustResult, e
 		return nil, fmt.Errorf("%s: %w", name, err)
 	}
 	t := h.Occasions()
-	if len(primary) != t {
-		return nil, fmt.Errorf("%s: %w: %d primary-period labels for %d occasions", name, estimators.ErrInvalidInput, len(primary), t)
-	}
-	// Group occasions into primaries.
-	var groups [][]int
-	for j := 0; j < t; j++ {
-		switch {
-		case j == 0 || primary[j] != primary[j-1]:
-			if j > 0 && primary[j] < primary[j-1] {
-				return nil, fmt.Errorf("%s: %w: occasion %d has primary period %d after %d: periods must not decrease", name, estimators.ErrInvalidInput, j+1, primary[j], primary[j-1])
-			}
-			groups = append(groups, []int{j})
-		default:
-			groups[len(groups)-1] = append(groups[len(groups)-1], j)
-		}
+	groups, err := primaryGroups(primary, t)
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", name, err)
 	}
 	k := len(groups)
-	if k < 3 {
-		return nil, fmt.Errorf("%s: %w: %d primary periods, at least 3 needed for survival", name, estimators.ErrTooFewOccasions, k)
-	}
-	for i, g := range groups {
-		if len(g) < 2 {
-			return nil, fmt.Errorf("%s: %w: primary period %d has one secondary occasion; closed models need at least 2", name, estimators.ErrTooFewOccasions, i+1)
-		}
-	}
 
 	res := &RobustResult{
 		Method: "Robust design, ad hoc two-stage approach (Pollock 1982): closed models M0/Mh within primaries, CJS survival between them",
