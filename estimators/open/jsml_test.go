@@ -357,3 +357,40 @@ func ExampleJollySeberML() {
 	// occasion 4: N = 524
 	// occasion 5: N = 540
 }
+
+// TestJSMLCoverage reports how often the 95% intervals of phi(.) p(.) b(t)
+// cover the true phi, p and superpopulation size over seeded simulations,
+// and fails if coverage is far from nominal (binomial SE about 1.5 points
+// with 300 replicates).
+func TestJSMLCoverage(t *testing.T) {
+	reps := 300
+	if testing.Short() {
+		reps = 80
+	}
+	rng := rand.New(rand.NewPCG(2026, 12))
+	cover := map[string]int{}
+	for r := 0; r < reps; r++ {
+		h, _ := gofSimulate(rng, gofSim{k: 6, entries: []int{300, 100, 100, 100, 100, 100}, phi: constSlice(5, 0.7), p: constSlice(6, 0.4)})
+		res, err := JollySeberML(h, Constant, Constant)
+		if err != nil {
+			t.Fatal(err)
+		}
+		phi, _ := res.Result.Param("phi")
+		p, _ := res.Result.Param("p")
+		for name, c := range map[string]struct {
+			iv    estimators.Interval
+			truth float64
+		}{"phi": {phi.Interval, 0.7}, "p": {p.Interval, 0.4}, "N": {res.Superpopulation.Interval, 800}} {
+			if c.iv.Low <= c.truth && c.truth <= c.iv.High {
+				cover[name]++
+			}
+		}
+	}
+	for _, name := range []string{"phi", "p", "N"} {
+		c := float64(cover[name]) / float64(reps)
+		t.Logf("coverage of the 95%% interval for %s: %.3f over %d data sets", name, c, reps)
+		if c < 0.89 || c > 0.99 {
+			t.Errorf("coverage for %s is %.3f, want about 0.95", name, c)
+		}
+	}
+}
