@@ -379,17 +379,20 @@ type robustQuantity struct {
 	floor        int                                      // log-normal floor for abundance
 	binomVar     func(p []float64, phi []float64) float64 // extra variance, may be nil
 	identifiable bool
-	f            func(phi, gamma, p, U []float64) float64
+	// primaries lists the primaries (0-based) the quantity needs captures
+	// in; with none caught there it is not estimable.
+	primaries []int
+	f         func(phi, gamma, p, U []float64) float64
 }
 
 func (m *robustModel) quantities() []robustQuantity {
 	k, st := m.k, m.st
 	pstar := func(p []float64, i int) float64 { return 1 - math.Pow(1-p[i], st.s[i]) }
-	nAt := func(p, U []float64, i int) float64 { return U[i] + st.present[i]/pstar(p, i) }
+	nAt := func(p, U []float64, i int) float64 { return U[i] + ratio(st.present[i], pstar(p, i)) }
 	hvar := func(i int) func(p, _ []float64) float64 {
 		return func(p, _ []float64) float64 {
 			ps := pstar(p, i)
-			return st.present[i] * (1 - ps) / (ps * ps)
+			return ratio(st.present[i]*(1-ps), ps*ps)
 		}
 	}
 	var q []robustQuantity
@@ -404,20 +407,20 @@ func (m *robustModel) quantities() []robustQuantity {
 		}
 	}
 	for i := 0; i < k; i++ {
-		q = append(q, robustQuantity{name: fmt.Sprintf("p[%d]", i+1), identifiable: true,
+		q = append(q, robustQuantity{name: fmt.Sprintf("p[%d]", i+1), identifiable: true, primaries: []int{i},
 			f: func(_, _, p, _ []float64) float64 { return p[i] }})
 	}
 	for i := 0; i < k; i++ {
-		q = append(q, robustQuantity{name: fmt.Sprintf("p*[%d]", i+1), identifiable: true,
+		q = append(q, robustQuantity{name: fmt.Sprintf("p*[%d]", i+1), identifiable: true, primaries: []int{i},
 			f: func(_, _, p, _ []float64) float64 { return pstar(p, i) }})
 	}
 	for i := 0; i < k; i++ {
-		q = append(q, robustQuantity{name: fmt.Sprintf("N[%d]", i+1), kind: 1, floor: st.caught[i], identifiable: true, binomVar: hvar(i),
+		q = append(q, robustQuantity{name: fmt.Sprintf("N[%d]", i+1), kind: 1, floor: st.caught[i], identifiable: true, binomVar: hvar(i), primaries: []int{i},
 			f: func(_, _, p, U []float64) float64 { return nAt(p, U, i) }})
 	}
 	if !m.random {
 		for i := 0; i < k-1; i++ {
-			q = append(q, robustQuantity{name: fmt.Sprintf("B[%d]", i+1), kind: 2, identifiable: true,
+			q = append(q, robustQuantity{name: fmt.Sprintf("B[%d]", i+1), kind: 2, identifiable: true, primaries: []int{i, i + 1},
 				binomVar: func(p, phi []float64) float64 {
 					return hvar(i+1)(p, phi) + phi[i]*phi[i]*hvar(i)(p, phi)
 				},
@@ -551,12 +554,30 @@ func (m *robustModel) result(name string, fit *estimators.Fit, groups [][]int) *
 			vars[i] = mat.Dot(gv, &cg) + extra[i]
 		}
 	}
+	for i := 0; i < k; i++ {
+		if m.st.caught[i] == 0 {
+			res.Boundary = true
+			res.Warnings = append(res.Warnings, fmt.Sprintf("nothing was caught in primary %d: its p, p* and N (and the recruits on either side) are not estimable and are reported as 0, not identifiable", i+1))
+		}
+	}
 	named := map[string]estimators.Named{}
 	for i, q := range qs {
 		nm := estimators.Named{Name: q.name, Identifiable: q.identifiable}
 		nm.Estimate = est[i]
 		if vars[i] > 0 && !math.IsInf(vars[i], 0) {
 			nm.SE = math.Sqrt(vars[i])
+		}
+		for _, pi := range q.primaries {
+			if m.st.caught[pi] == 0 {
+				nm.Identifiable = false
+				nm.Estimate, nm.SE = 0, 0
+			}
+		}
+		if math.IsNaN(nm.Estimate) || math.IsInf(nm.Estimate, 0) {
+			nm.Identifiable = false
+			nm.Estimate, nm.SE = 0, 0
+			res.Boundary = true
+			res.Warnings = append(res.Warnings, fmt.Sprintf("%s cannot be computed at the maximum and is reported as 0, not identifiable", q.name))
 		}
 		switch q.kind {
 		case 0:
