@@ -174,25 +174,25 @@ func loadEstimateInput(histories, study, data string) (*estimateInput, error) {
 // estimateJSON is one line of `tagtally estimate --json`. Numbers that do
 // not apply (or are not finite) are left out rather than written as null.
 type estimateJSON struct {
-	ID          string   `json:"id"`
-	Name        string   `json:"name"`
-	Family      string   `json:"family"`
-	N           *float64 `json:"N,omitempty"`
-	SE          *float64 `json:"se,omitempty"`
-	CILow       *float64 `json:"ci_low,omitempty"`
-	CIHigh      *float64 `json:"ci_high,omitempty"`
-	CIKind      string   `json:"ci_kind,omitempty"`
-	LogLik      *float64 `json:"loglik,omitempty"`
-	Params      *int     `json:"params,omitempty"`
-	AICc        *float64 `json:"aicc,omitempty"`
-	Delta       *float64 `json:"delta,omitempty"`
-	Weight      *float64 `json:"weight,omitempty"`
-	Boundary    bool     `json:"boundary,omitempty"`
-	Error       string   `json:"error,omitempty"`
-	Parameters  []estParam  `json:"parameters,omitempty"`
-	Warnings    []string `json:"warnings,omitempty"`
-	Assumptions []string `json:"assumptions,omitempty"`
-	References  []string `json:"references,omitempty"`
+	ID          string     `json:"id"`
+	Name        string     `json:"name"`
+	Family      string     `json:"family"`
+	N           *float64   `json:"N,omitempty"`
+	SE          *float64   `json:"se,omitempty"`
+	CILow       *float64   `json:"ci_low,omitempty"`
+	CIHigh      *float64   `json:"ci_high,omitempty"`
+	CIKind      string     `json:"ci_kind,omitempty"`
+	LogLik      *float64   `json:"loglik,omitempty"`
+	Params      *int       `json:"params,omitempty"`
+	AICc        *float64   `json:"aicc,omitempty"`
+	Delta       *float64   `json:"delta,omitempty"`
+	Weight      *float64   `json:"weight,omitempty"`
+	Boundary    bool       `json:"boundary,omitempty"`
+	Error       string     `json:"error,omitempty"`
+	Parameters  []estParam `json:"parameters,omitempty"`
+	Warnings    []string   `json:"warnings,omitempty"`
+	Assumptions []string   `json:"assumptions,omitempty"`
+	References  []string   `json:"references,omitempty"`
 }
 
 type estParam struct {

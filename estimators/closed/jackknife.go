@@ -119,7 +119,9 @@ func jkLogFactorial(n int) float64 {
 	return v
 }
 
-func jkLogChoose(n, k int) float64 { return jkLogFactorial(n) - jkLogFactorial(k) - jkLogFactorial(n-k) }
+func jkLogChoose(n, k int) float64 {
+	return jkLogFactorial(n) - jkLogFactorial(k) - jkLogFactorial(n-k)
+}
 
 // JackknifeOrder is one order of the jackknife with the test of the next
 // order against it.

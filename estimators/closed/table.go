@@ -51,7 +51,9 @@ var tableModels = []ModelInfo{
 	{ID: "mtb", Name: "Mtb", Family: FamilyFull, Summary: "varies by occasion, with a trap response",
 		run: func(h *estimators.Histories, _ TableOptions) (*estimators.Result, error) { return Mtb(h) }},
 	{ID: "huggins", Name: "Huggins p(.)", Family: FamilyConditional, Summary: "conditional likelihood, constant capture probability",
-		run: func(h *estimators.Histories, _ TableOptions) (*estimators.Result, error) { return Huggins(h, nil, false) }},
+		run: func(h *estimators.Histories, _ TableOptions) (*estimators.Result, error) {
+			return Huggins(h, nil, false)
+		}},
 	{ID: "huggins-covariates", Name: "Huggins p(covariates)", Family: FamilyConditional, Summary: "conditional likelihood, capture probability depends on individual covariates",
 		run: func(h *estimators.Histories, opts TableOptions) (*estimators.Result, error) {
 			covs := tableCovariates(h, opts)

@@ -31,12 +31,12 @@ type independent struct {
 		Plus1Limits   [2]float64 `json:"schnabel_plus1_limits"`
 	} `json:"census"`
 	Removal []struct {
-		Catches      []int   `json:"catches"`
-		ZippinN      float64 `json:"zippin_N"`
-		ZippinP      float64 `json:"zippin_p"`
-		ZippinVar    float64 `json:"zippin_var_info"`
-		ZippinVarP   float64 `json:"zippin_varp_info"`
-		CarleStrubN  float64 `json:"carle_strub_N"`
+		Catches     []int   `json:"catches"`
+		ZippinN     float64 `json:"zippin_N"`
+		ZippinP     float64 `json:"zippin_p"`
+		ZippinVar   float64 `json:"zippin_var_info"`
+		ZippinVarP  float64 `json:"zippin_varp_info"`
+		CarleStrubN float64 `json:"carle_strub_N"`
 	} `json:"removal"`
 	JackknifeBrute struct {
 		Freqs []int     `json:"freqs"`
