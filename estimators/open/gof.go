@@ -185,6 +185,51 @@ func GoodnessOfFit(h *estimators.Histories) (*GOF, error) {
 	return g, nil
 }
 
+// Test2FromMArray computes the TEST 2 components (2.CT and 2.CL) from an
+// m-array alone, for data kept only as an m-array. TEST 2 needs nothing
+// more (Burnham et al. 1987): for occasion i, the row "caught at i" is
+// m_ij, the animals released at i next seen at j > i, and the row "not
+// caught at i" is Σ_{h<i} m_hj for j > i, the animals released before i
+// whose next capture came after i. The tables, pooling, tests and c-hat are
+// those of GoodnessOfFit, which gives the same TEST 2 from the histories.
+// TEST 3 needs individual histories and is absent (its totals are zero and
+// a warning says so), so c-hat here rests on TEST 2 alone.
+//
+// Errors: those of MArray.Validate, and estimators.ErrTooFewOccasions for
+// fewer than 4 occasions (TEST 2.CT needs occasions i-1, i, i+1, i+2).
+func Test2FromMArray(m MArray) (*GOF, error) {
+	if err := m.Validate(); err != nil {
+		return nil, fmt.Errorf("goodness of fit (TEST 2 from the m-array): %w", err)
+	}
+	k := m.Occasions()
+	if k < 4 {
+		return nil, fmt.Errorf("goodness of fit (TEST 2 from the m-array): %w: %d occasions, TEST 2 needs at least 4", estimators.ErrTooFewOccasions, k)
+	}
+	t := &gofCounts{k: k, sr: make([][2][2]int, k), ct: make([][2][2]int, k), sm: make([][2][]int, k), cl: make([][2][]int, k)}
+	for i := 0; i < k; i++ {
+		t.cl[i] = [2][]int{make([]int, k), make([]int, k)}
+	}
+	for i := 1; i <= k-3; i++ {
+		for j := i + 1; j < k; j++ {
+			t.add2(i, 0, j, m.M[i][j])
+			for h := 0; h < i; h++ {
+				t.add2(i, 1, j, m.M[h][j])
+			}
+		}
+	}
+	g := &GOF{Method: "CJS goodness of fit: TEST 2 components from the m-array"}
+	for i := 1; i <= k-3; i++ {
+		g.Components = append(g.Components, t.component(Test2CT, i))
+		if i <= k-4 {
+			g.Components = append(g.Components, t.component(Test2CL, i))
+		}
+	}
+	g.finish()
+	g.Overall.Name = "TEST 2"
+	g.Warnings = append(g.Warnings, "TEST 3 needs individual capture histories and is not included: c-hat rests on TEST 2 alone.")
+	return g, nil
+}
+
 // GoodnessOfFitByGroup runs the component tests separately in each group
 // of h.Groups (e.g. sex) and sums them, the usual way to test a model
 // with group effects, phi(g*t) p(g*t) (Burnham et al. 1987; Lebreton et
@@ -407,25 +452,25 @@ func gofCount(h *estimators.Histories) *gofCounts {
 				continue
 			}
 			if c >= 1 && c <= k-3 {
-				t.add2(c, 0, next)
+				t.add2(c, 0, next, 1)
 			}
 			for i := max(c+1, 1); i < next && i <= k-3; i++ {
-				t.add2(i, 1, next)
+				t.add2(i, 1, next, 1)
 			}
 		}
 	}
 	return t
 }
 
-// add2 counts one animal known alive at i (row r) next seen at next > i in
+// add2 counts n animals known alive at i (row r) next seen at next > i in
 // the TEST 2 tables.
-func (t *gofCounts) add2(i, r, next int) {
+func (t *gofCounts) add2(i, r, next, n int) {
 	if next == i+1 {
-		t.ct[i][r][0]++
+		t.ct[i][r][0] += n
 		return
 	}
-	t.ct[i][r][1]++
-	t.cl[i][r][next]++
+	t.ct[i][r][1] += n
+	t.cl[i][r][next] += n
 }
 
 // component returns the tested table of one component at occasion i

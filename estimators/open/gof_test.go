@@ -515,6 +515,40 @@ func TestGOFByGroup(t *testing.T) {
 	t.Logf("by group: X2 %.2f on %d df (P %.3f)", all.Overall.ChiSquare, all.Overall.DF, all.Overall.P)
 }
 
+// TestTest2FromMArray: TEST 2 from the m-array equals TEST 2 from the
+// histories it was built from (FromHistories), table by table.
+func TestTest2FromMArray(t *testing.T) {
+	for name, h := range gofReferenceSims() {
+		full, err := GoodnessOfFit(h)
+		if err != nil {
+			t.Fatal(err)
+		}
+		m, _, err := FromHistories(h)
+		if err != nil {
+			t.Fatal(err)
+		}
+		t2, err := Test2FromMArray(m)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, c := range t2.Components {
+			f := findComponent(t, full, c.Test, c.Occasion)
+			if pooledString(c) != pooledString(f) || c.ChiSquare != f.ChiSquare || c.DF != f.DF {
+				t.Errorf("%s: %s_%d from the m-array %s X2 %g, from histories %s X2 %g", name, c.Test, c.Occasion, pooledString(c), c.ChiSquare, pooledString(f), f.ChiSquare)
+			}
+		}
+		if t2.Overall.ChiSquare != full.Test2.ChiSquare || t2.Overall.DF != full.Test2.DF || t2.SR.DF != 0 {
+			t.Errorf("%s: TEST 2 from the m-array %g on %d df, from histories %g on %d", name, t2.Overall.ChiSquare, t2.Overall.DF, full.Test2.ChiSquare, full.Test2.DF)
+		}
+	}
+	if _, err := Test2FromMArray(MArray{Released: []int{3, 2, 0}, M: [][]int{{0, 1, 1}, {0, 0, 1}, {0, 0, 0}}}); !errors.Is(err, estimators.ErrTooFewOccasions) {
+		t.Errorf("3 occasions: err = %v", err)
+	}
+	if _, err := Test2FromMArray(MArray{Released: []int{1}, M: [][]int{{0, 1}}}); !errors.Is(err, estimators.ErrInvalidInput) {
+		t.Errorf("bad m-array: err = %v", err)
+	}
+}
+
 func TestGOFBadInput(t *testing.T) {
 	for _, tc := range []struct {
 		name string
