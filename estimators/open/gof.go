@@ -108,9 +108,9 @@ func (g *GOF) SelectionCHat() float64 {
 
 // GoodnessOfFit computes the component goodness-of-fit tests of the
 // Cormack-Jolly-Seber model with time-dependent survival and capture
-// probability (Burnham et al. 1987; Pollock, Hines & Nichols 1985), in the
-// form of Pradel, Gimenez & Lebreton (2005), from individual capture
-// histories. Occasions i below are 1-based, k is the number of occasions,
+// probability (Burnham et al. 1987; Pollock, Hines & Nichols 1985), with
+// the component names used by Pradel, Gimenez & Lebreton (2005), from
+// individual capture histories. Occasions i below are 1-based, k is the number of occasions,
 // and "released at i" means caught at i and not lost on capture there.
 //
 //	TEST 3.SR_i (i = 2..k-1): animals released at i; rows: seen before i
@@ -155,8 +155,8 @@ func (g *GOF) SelectionCHat() float64 {
 //
 // Losses on capture (h.Removed) are honoured: an animal lost at its last
 // capture is not released there and does not count in the tables of that
-// occasion. Group labels are ignored: run the tests per group by passing
-// each group's histories separately.
+// occasion. Group labels are ignored here; GoodnessOfFitByGroup tests
+// each group and sums.
 //
 // Errors: estimators.ErrNoData for empty input, estimators.ErrInvalidInput
 // for malformed histories, estimators.ErrTooFewOccasions for fewer than 3
