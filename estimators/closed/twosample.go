@@ -18,17 +18,23 @@ type TwoSample struct {
 	C int `json:"C"`
 	// R is the number of animals in the second sample that carried a mark.
 	R int `json:"R"`
+	// LostFirst is the number of animals caught in the first sample and
+	// not released (loss on capture). They are not in M; the estimate of
+	// the population left after the first sample is raised by LostFirst so
+	// that N refers to the population at the first sample (Seber 1982,
+	// ch. 3).
+	LostFirst int `json:"lost_first,omitempty"`
 }
 
 // Caught is the number of distinct animals seen in the two samples,
-// M + C - R, the floor for any estimate of N.
-func (s TwoSample) Caught() int { return s.M + s.C - s.R }
+// M + LostFirst + C - R, the floor for any estimate of N.
+func (s TwoSample) Caught() int { return s.M + s.LostFirst + s.C - s.R }
 
 // Validate checks that the counts are non-negative and consistent.
 func (s TwoSample) Validate() error {
 	switch {
-	case s.M < 0 || s.C < 0 || s.R < 0:
-		return fmt.Errorf("two-sample counts: %w: negative count (M=%d, C=%d, R=%d)", estimators.ErrInvalidInput, s.M, s.C, s.R)
+	case s.M < 0 || s.C < 0 || s.R < 0 || s.LostFirst < 0:
+		return fmt.Errorf("two-sample counts: %w: negative count (M=%d, C=%d, R=%d, lost=%d)", estimators.ErrInvalidInput, s.M, s.C, s.R, s.LostFirst)
 	case s.M == 0 && s.C == 0:
 		return fmt.Errorf("two-sample counts: %w: nothing was caught", estimators.ErrNoData)
 	case s.M == 0:
@@ -46,7 +52,7 @@ func (s TwoSample) Validate() error {
 // TwoSampleFromHistories derives two-sample counts from capture histories
 // with exactly two occasions. Animals lost on capture at the first occasion
 // (Removed, with no capture at the second) are not counted in M, since they
-// were never released to be recaptured.
+// were never released to be recaptured; they are counted in LostFirst.
 func TwoSampleFromHistories(h *estimators.Histories) (TwoSample, error) {
 	if err := h.Validate(); err != nil {
 		return TwoSample{}, fmt.Errorf("two-sample counts: %w", err)
@@ -57,7 +63,10 @@ func TwoSampleFromHistories(h *estimators.Histories) (TwoSample, error) {
 	var s TwoSample
 	for i, row := range h.Caught {
 		lostFirst := h.Removed != nil && h.Removed[i] && row[0] && !row[1]
-		if row[0] && !lostFirst {
+		switch {
+		case lostFirst:
+			s.LostFirst++
+		case row[0]:
 			s.M++
 		}
 		if row[1] {
@@ -250,10 +259,12 @@ func twoSampleEstimate(m twoSampleMethod, s TwoSample, ci TwoSampleCI) (*estimat
 	if v < 0 || math.IsNaN(v) {
 		v = 0
 	}
-	if n < caught {
+	// Before losses are added back, the floor is the animals seen alive
+	// after the first sample: M + C - R.
+	if seen := float64(s.M + s.C - s.R); n < seen {
 		res.Boundary = true
-		res.Warnings = append(res.Warnings, fmt.Sprintf("the estimate %.1f is below the %d animals caught and is raised to that number", n, s.Caught()))
-		n = caught
+		res.Warnings = append(res.Warnings, fmt.Sprintf("the estimate %.1f is below the %d animals caught and is raised to that number", n, s.M+s.C-s.R))
+		n = seen
 	}
 	se := math.Sqrt(v)
 	if se == 0 {
@@ -278,6 +289,14 @@ func twoSampleEstimate(m twoSampleMethod, s TwoSample, ci TwoSampleCI) (*estimat
 		iv = estimators.Interval{Low: m.n(s, hi*c), High: m.n(s, lo*c), Level: estimators.DefaultLevel, Kind: estimators.CIBinomial}
 	default:
 		return nil, fmt.Errorf("%s: %w: unknown interval choice %d", m.name, estimators.ErrInvalidInput, ci)
+	}
+	if lost := float64(s.LostFirst); lost > 0 {
+		// The formulas estimate the animals at large after the first
+		// sample; the animals removed then are added back.
+		n += lost
+		iv.Low += lost
+		iv.High += lost
+		res.Warnings = append(res.Warnings, fmt.Sprintf("%d animals lost on capture in the first sample are added to the estimate", s.LostFirst))
 	}
 	if iv.Low < caught {
 		iv.Low = caught

@@ -181,9 +181,18 @@ func TestTwoSampleFromHistories(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if s != (TwoSample{M: 3, C: 3, R: 2}) {
+	if s != (TwoSample{M: 3, C: 3, R: 2, LostFirst: 1}) {
 		t.Errorf("got %+v", s)
 	}
+	// Losses in the first sample are added back to the estimate.
+	withLoss, err := Chapman(TwoSample{M: 120, C: 95, R: 28, LostFirst: 7}, TwoSampleCIPoisson)
+	if err != nil {
+		t.Fatal(err)
+	}
+	noLoss, _ := Chapman(TwoSample{M: 120, C: 95, R: 28}, TwoSampleCIPoisson)
+	near(t, "N with losses", withLoss.N.Estimate, noLoss.N.Estimate+7, 1e-9)
+	near(t, "low with losses", withLoss.N.Low, noLoss.N.Low+7, 1e-9)
+	near(t, "SE with losses", withLoss.N.SE, noLoss.N.SE, 0)
 	h.Caught = append(h.Caught[:0:0], []bool{true, true, true})
 	h.Removed = nil
 	if _, err := TwoSampleFromHistories(h); !errors.Is(err, estimators.ErrTooFewOccasions) {
