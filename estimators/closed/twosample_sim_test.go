@@ -16,7 +16,7 @@ func TestChapmanCoverage(t *testing.T) {
 		n, m int
 		p    float64
 	}{
-		{n: 400, m: 80, p: 0.2},  // R about 16: Poisson or binomial limits
+		{n: 400, m: 80, p: 0.2},    // R about 16: Poisson or binomial limits
 		{n: 1500, m: 300, p: 0.25}, // R about 75: binomial limits
 	} {
 		rng := rand.New(rand.NewPCG(uint64(c.n), uint64(c.m)))
