@@ -2,6 +2,7 @@ package closed
 
 import (
 	"errors"
+	"math"
 	"math/rand/v2"
 	"testing"
 
@@ -98,6 +99,47 @@ func TestRemovalNeverBelowCaught(t *testing.T) {
 				continue
 			}
 			checkN(t, r, total)
+		}
+	}
+}
+
+// TestZippinVariancePublishedTable checks Zippin's variance against a
+// published table of the coefficient of variation 100·SE(N)/N of removal
+// estimates for population size N, capture probability p and k removals:
+// Table 2, "Coefficient of variation C % for the removal method", of an
+// electrofishing review (attributed here to Bohlin, Hamrin, Heggberget,
+// Rasmussen & Saltveit 1989, Hydrobiologia 173:9-43; the attribution is
+// from memory, the numbers are as printed). The table is rounded to whole
+// percent (to 0.1 below 2%), so the tolerance is half a unit of the last
+// printed digit, widened to 0.6 of it because one entry looks truncated
+// rather than rounded (N=50, p=0.8, k=3: the formula gives 1.451, the table
+// prints 1.4).
+func TestZippinVariancePublishedTable(t *testing.T) {
+	ns := []float64{50, 100, 200, 400}
+	for _, row := range []struct {
+		p  float64
+		k  int
+		cv []float64
+	}{
+		{0.4, 2, []float64{42, 30, 21, 15}},
+		{0.4, 3, []float64{19, 13, 9, 7}},
+		{0.4, 4, []float64{10, 7, 5, 4}},
+		{0.6, 2, []float64{14, 10, 7, 5}},
+		{0.6, 3, []float64{6, 4, 3, 2}},
+		{0.6, 4, []float64{3, 2, 1.5, 1}},
+		{0.8, 2, []float64{4, 3, 2, 1.5}},
+		{0.8, 3, []float64{1.4, 1, 0.7, 0.5}},
+		{0.8, 4, []float64{0.6, 0.4, 0.3, 0.2}},
+	} {
+		for i, n := range ns {
+			got := 100 * math.Sqrt(ZippinVariance(n, row.p, row.k)) / n
+			tol := 0.6
+			if row.cv[i] < 2 || row.cv[i] != math.Trunc(row.cv[i]) {
+				tol = 0.06
+			}
+			if math.Abs(got-row.cv[i]) > tol+1e-9 {
+				t.Errorf("N=%.0f p=%.1f k=%d: CV %.2f%%, table %.1f%%", n, row.p, row.k, got, row.cv[i])
+			}
 		}
 	}
 }
