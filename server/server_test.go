@@ -369,3 +369,28 @@ func TestConfigValidate(t *testing.T) {
 		}
 	}
 }
+
+// TestBodyLimitWithoutLength sends an over-long body in chunks, with no
+// Content-Length to refuse it by: reading it must stop at the limit with
+// a 413, and nothing is written.
+func TestBodyLimitWithoutLength(t *testing.T) {
+	ts := newTestServer(t, func(c *Config) { c.MaxBodyBytes = 4096 })
+	long := strings.Replace(validCapture, `"observer"`, `"notes":"`+strings.Repeat("x", 8000)+`","observer"`, 1)
+	body := struct{ io.Reader }{strings.NewReader(long)} // hides the length
+	req, err := http.NewRequest("POST", ts.URL+"/api/v1/studies/"+ts.study.ID+"/captures", body)
+	if err != nil {
+		t.Fatal(err)
+	}
+	req.Header.Set("Content-Type", "application/json")
+	resp, err := ts.Client().Do(req)
+	if err != nil {
+		t.Fatal(err)
+	}
+	resp.Body.Close()
+	if resp.StatusCode != http.StatusRequestEntityTooLarge || req.ContentLength != 0 {
+		t.Errorf("chunked over-long body = %d (sent length %d), want 413", resp.StatusCode, req.ContentLength)
+	}
+	if n := ts.count(t); n != 0 {
+		t.Errorf("%d records stored", n)
+	}
+}

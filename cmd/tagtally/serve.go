@@ -46,6 +46,9 @@ func runServe(args []string, stdout io.Writer) error {
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
 	defer stop()
+	// After the first Ctrl+C a second one stops at once, the usual way
+	// (acknowledged records are on disk either way).
+	go func() { <-ctx.Done(); stop() }()
 	return serve(ctx, cfg, *withDemo, stdout)
 }
 
