@@ -20,7 +20,7 @@ func benchRobust(b *testing.B, initial int, ml bool) {
 	for b.Loop() {
 		var err error
 		if ml {
-			_, err = RobustDesignML(h, primary, RandomEmigration)
+			_, err = RobustDesignML(h, primary, RobustModel{Emigration: RandomEmigration})
 		} else {
 			_, err = RobustDesignAdHoc(h, primary)
 		}

@@ -88,8 +88,8 @@ func TestOpenEntryPointsRandomSmallStudies(t *testing.T) {
 				}
 			}
 		}
-		for _, em := range []string{NoEmigration, RandomEmigration} {
-			res, err := RobustDesignML(h, primary, em)
+		for _, model := range []RobustModel{{NoEmigration, false}, {RandomEmigration, false}, {RandomEmigration, true}} {
+			res, err := RobustDesignML(h, primary, model)
 			if err != nil {
 				if !known(err) {
 					t.Errorf("rep %d: RobustDesignML: %v", r, err)

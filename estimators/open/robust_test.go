@@ -18,6 +18,9 @@ type robustSim struct {
 	births                 int     // joining before each later primary
 	phi                    float64 // survival between primaries
 	p                      float64 // capture probability per secondary occasion
+	// pBySecondary, when set, gives the capture probability on each
+	// secondary occasion instead of p (model Mt within primaries).
+	pBySecondary []float64
 	// When pLow > 0, each animal is, with probability wLow, of a less
 	// catchable kind with p = pLow (individual heterogeneity, model Mh).
 	pLow, wLow float64
@@ -57,7 +60,11 @@ func robustSimulate(rng *rand.Rand, s robustSim) (*estimators.Histories, []int, 
 			}
 			present[i]++
 			for q := 0; q < s.secondaries; q++ {
-				if rng.Float64() < p {
+				pq := p
+				if s.pBySecondary != nil {
+					pq = s.pBySecondary[q]
+				}
+				if rng.Float64() < pq {
 					row[i*s.secondaries+q] = true
 					seen = true
 					if rng.Float64() < s.loss {

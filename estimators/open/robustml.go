@@ -10,6 +10,26 @@ import (
 	"tagtally/estimators"
 )
 
+// RobustModel chooses the structure of a RobustDesignML fit.
+type RobustModel struct {
+	// Emigration is NoEmigration or RandomEmigration.
+	Emigration string
+	// TimeWithin lets the capture probability vary between the secondary
+	// occasions of a primary (model Mt within primaries); otherwise it is
+	// one value per primary (model M0 within primaries).
+	TimeWithin bool
+}
+
+// String names the model, e.g. "M0 within primaries, phi(t), temporary
+// emigration: random".
+func (r RobustModel) String() string {
+	within := "M0"
+	if r.TimeWithin {
+		within = "Mt"
+	}
+	return fmt.Sprintf("%s within primaries, phi(t), temporary emigration: %s", within, r.Emigration)
+}
+
 // Temporary emigration models for RobustDesignML.
 const (
 	// NoEmigration: every animal alive is in the study area in every
@@ -31,11 +51,12 @@ type RobustMLPrimary struct {
 	// Marked how many of them had been caught in an earlier primary.
 	Caught int `json:"caught"`
 	Marked int `json:"marked"`
-	// P is the capture probability per secondary occasion; PStar the
+	// P is the capture probability per secondary occasion: one value
+	// (M0 within primaries) or one per secondary (Mt). PStar is the
 	// probability of being caught at least once in the primary when
-	// present, 1 - (1 - p)^S.
-	P     estimators.Named `json:"p"`
-	PStar estimators.Named `json:"p_star"`
+	// present, 1 - Π_s (1 - p_s).
+	P     []estimators.Named `json:"p"`
+	PStar estimators.Named   `json:"p_star"`
 	// N is the number of animals present in the study area during the
 	// primary (alive and not away).
 	N estimators.Named `json:"N"`
@@ -54,7 +75,8 @@ type RobustMLPrimary struct {
 type RobustMLResult struct {
 	// Result carries the model name, log-likelihood, K, AICc and every
 	// parameter by name (phi[i], gamma[i], p[i], p*[i], N[i], B[i], with i
-	// the primary period), for estimators.Select.
+	// the primary period; p[i,s] for secondary s with Mt within
+	// primaries), for estimators.Select.
 	Result    *estimators.Result `json:"result"`
 	Primaries []RobustMLPrimary  `json:"primaries"`
 }
@@ -62,10 +84,12 @@ type RobustMLResult struct {
 // RobustDesignML fits Pollock's robust design by maximum likelihood
 // (Kendall, Pollock & Brownie 1995; with temporary emigration, Kendall,
 // Nichols & Hines 1997), with model M0 within each primary period (one
-// capture probability p_i per secondary occasion of primary i), survival
-// phi_i between primaries, and emigration NoEmigration or
+// capture probability p_i for every secondary occasion of primary i) or,
+// with model.TimeWithin, model Mt (p_is for secondary s), survival phi_i
+// between primaries, and model.Emigration NoEmigration or
 // RandomEmigration. primary[j] is the primary period of occasion j, as for
-// RobustDesignAdHoc.
+// RobustDesignAdHoc. The formulas below are written for M0; for Mt,
+// (1-p_i)^S_i becomes Π_s (1-p_is) and each secondary uses its own p_is.
 //
 // Likelihood. We write it as the product of two parts, following the
 // split of the Jolly-Seber likelihood into first captures and recaptures
@@ -105,8 +129,9 @@ type RobustMLResult struct {
 // gamma enter only as phi_{K-1} (1 - gamma_K); we impose gamma_K =
 // gamma_{K-1}, one of the constraints Kendall, Nichols & Hines (1997)
 // discuss (from memory); gamma_K is then flagged Identifiable false and
-// K counts it once. K: 2K-1+K = 3K-1 without emigration (phi, p, U), plus
-// K-2 gammas with random emigration. The AICc sample size is the number of
+// K counts it once. K = (K-1) + K + K = 3K-1 without emigration (phi, p,
+// U) with M0 within primaries, (K-1) + T + K with Mt (T occasions in
+// all), plus K-2 gammas with random emigration. The AICc sample size is the number of
 // distinct animals caught.
 //
 // Page numbers and bibliographic details of the references are from
@@ -117,10 +142,10 @@ type RobustMLResult struct {
 // animal was caught in two primaries; ErrInvalidInput for an unknown
 // emigration model. Boundary estimates are flagged as in JollySeberML,
 // with SEs computed holding the boundary parameters fixed.
-func RobustDesignML(h *estimators.Histories, primary []int, emigration string) (*RobustMLResult, error) {
-	name := fmt.Sprintf("robust design (likelihood) M0 within primaries, phi(t), temporary emigration: %s", emigration)
-	if emigration != NoEmigration && emigration != RandomEmigration {
-		return nil, fmt.Errorf("%s: %w: emigration model %q, want %q or %q", name, estimators.ErrInvalidInput, emigration, NoEmigration, RandomEmigration)
+func RobustDesignML(h *estimators.Histories, primary []int, model RobustModel) (*RobustMLResult, error) {
+	name := "robust design (likelihood) " + model.String()
+	if model.Emigration != NoEmigration && model.Emigration != RandomEmigration {
+		return nil, fmt.Errorf("%s: %w: emigration model %q, want %q or %q", name, estimators.ErrInvalidInput, model.Emigration, NoEmigration, RandomEmigration)
 	}
 	if err := h.Validate(); err != nil {
 		return nil, fmt.Errorf("%s: %w", name, err)
@@ -133,7 +158,7 @@ func RobustDesignML(h *estimators.Histories, primary []int, emigration string) (
 	if st.marked == 0 {
 		return nil, fmt.Errorf("%s: %w: no animal was caught in two primary periods", name, estimators.ErrNoRecaptures)
 	}
-	m := newRobustModel(st, emigration == RandomEmigration)
+	m := newRobustModel(st, model.Emigration == RandomEmigration, model.TimeWithin)
 	fit, err := estimators.Maximize(m.logLik, nil, m.start())
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", name, err)
@@ -172,6 +197,12 @@ func primaryGroups(primary []int, t int) ([][]int, error) {
 // robustTotals are the per-primary totals of the robust-design likelihood.
 type robustTotals struct {
 	k          int
+	groups     [][]int   // occasions of each primary
+	occPrimary []int     // primary of each occasion
+	occFirst   []float64 // first captures on the occasion
+	occBefore  []float64 // animals first caught later in the same primary
+	occHits    []float64 // within-primary recaptures on the occasion
+	occMiss    []float64 // within-primary misses after first capture
 	s          []float64 // secondaries per primary
 	u          []float64 // first caught in the primary
 	firstMiss  []float64 // Σ (s-1) over first captures
@@ -188,7 +219,14 @@ type robustTotals struct {
 
 func robustStats(h *estimators.Histories, groups [][]int) *robustTotals {
 	k := len(groups)
-	st := &robustTotals{k: k, animals: h.Animals()}
+	t := h.Occasions()
+	st := &robustTotals{k: k, animals: h.Animals(), groups: groups, occPrimary: make([]int, t),
+		occFirst: make([]float64, t), occBefore: make([]float64, t), occHits: make([]float64, t), occMiss: make([]float64, t)}
+	for i, g := range groups {
+		for _, j := range g {
+			st.occPrimary[j] = i
+		}
+	}
 	for _, p := range []*[]float64{&st.s, &st.u, &st.firstMiss, &st.hits, &st.miss, &st.present, &st.notCaught, &st.alive, &st.released, &st.lost} {
 		*p = make([]float64, k)
 	}
@@ -247,6 +285,10 @@ func robustStats(h *estimators.Histories, groups [][]int) *robustTotals {
 					if row[j] {
 						st.u[i]++
 						st.firstMiss[i] += float64(s)
+						st.occFirst[j]++
+						for _, jb := range g[:s] {
+							st.occBefore[jb]++
+						}
 						started = true
 						if lostAnimal && j == lastOcc {
 							break
@@ -256,8 +298,10 @@ func robustStats(h *estimators.Histories, groups [][]int) *robustTotals {
 				}
 				if row[j] {
 					st.hits[i]++
+					st.occHits[j]++
 				} else {
 					st.miss[i]++
+					st.occMiss[j]++
 				}
 				if lostAnimal && j == lastOcc {
 					break
@@ -276,13 +320,23 @@ func robustStats(h *estimators.Histories, groups [][]int) *robustTotals {
 type robustModel struct {
 	st     *robustTotals
 	random bool
-	k      int
-	// offsets in x: phi (k-1), gamma (k-2 when random), p (k), ln(U-u) (k)
+	mt     bool
+	k, t   int
+	// offsets in x: phi (k-1), gamma (k-2 when random), p (k, or t with
+	// Mt), ln(U-u) (k)
 	oPhi, oGamma, oP, oU, nx int
 }
 
-func newRobustModel(st *robustTotals, random bool) *robustModel {
-	m := &robustModel{st: st, random: random, k: st.k}
+// pIndex is the p coefficient of occasion j.
+func (m *robustModel) pIndex(j int) int {
+	if m.mt {
+		return j
+	}
+	return m.st.occPrimary[j]
+}
+
+func newRobustModel(st *robustTotals, random, mt bool) *robustModel {
+	m := &robustModel{st: st, random: random, mt: mt, k: st.k, t: len(st.occPrimary)}
 	m.oPhi = 0
 	m.oGamma = m.k - 1
 	nGamma := 0
@@ -290,12 +344,17 @@ func newRobustModel(st *robustTotals, random bool) *robustModel {
 		nGamma = m.k - 2
 	}
 	m.oP = m.oGamma + nGamma
-	m.oU = m.oP + m.k
+	nP := m.k
+	if mt {
+		nP = m.t
+	}
+	m.oU = m.oP + nP
 	m.nx = m.oU + m.k
 	return m
 }
 
-// params fills phi (k-1), gamma (k; gamma[0] = 0), p (k) and U (k).
+// params fills phi (k-1), gamma (k; gamma[0] = 0), p (per occasion, t)
+// and U (k).
 func (m *robustModel) params(x, phi, gamma, p, U []float64) {
 	k := m.k
 	for i := 0; i < k-1; i++ {
@@ -307,9 +366,20 @@ func (m *robustModel) params(x, phi, gamma, p, U []float64) {
 			idx := min(i, k-2) - 1 // gamma_K = gamma_{K-1}
 			gamma[i] = estimators.Expit(x[m.oGamma+idx])
 		}
-		p[i] = estimators.Expit(x[m.oP+i])
 		U[i] = m.st.u[i] + math.Exp(x[m.oU+i])
 	}
+	for j := range p {
+		p[j] = estimators.Expit(x[m.oP+m.pIndex(j)])
+	}
+}
+
+// missAll is Π_s (1 - p_s) over the secondaries of primary i.
+func (m *robustModel) missAll(p []float64, i int) float64 {
+	v := 1.0
+	for _, j := range m.st.groups[i] {
+		v *= 1 - p[j]
+	}
+	return v
 }
 
 func (m *robustModel) logLik(x []float64) float64 {
@@ -317,12 +387,12 @@ func (m *robustModel) logLik(x []float64) float64 {
 	st := m.st
 	phi := make([]float64, k-1)
 	gamma := make([]float64, k)
-	p := make([]float64, k)
+	p := make([]float64, m.t)
 	U := make([]float64, k)
 	m.params(x, phi, gamma, p, U)
 	q := make([]float64, k)
 	for i := 0; i < k; i++ {
-		q[i] = gamma[i] + (1-gamma[i])*math.Pow(1-p[i], st.s[i])
+		q[i] = gamma[i] + (1-gamma[i])*m.missAll(p, i)
 	}
 	chi := make([]float64, k)
 	chi[k-1] = 1
@@ -334,8 +404,10 @@ func (m *robustModel) logLik(x []float64) float64 {
 		a, _ := math.Lgamma(U[i] + 1)
 		b, _ := math.Lgamma(U[i] - st.u[i] + 1)
 		ll += a - b
-		ll += jsXlogy(st.u[i]+st.hits[i], p[i])
-		ll += jsXlogy(st.firstMiss[i]+st.miss[i]+st.s[i]*(U[i]-st.u[i]), 1-p[i])
+		for _, j := range st.groups[i] {
+			ll += jsXlogy(st.occFirst[j]+st.occHits[j], p[j])
+			ll += jsXlogy(st.occBefore[j]+st.occMiss[j]+U[i]-st.u[i], 1-p[j])
+		}
 		ll += jsXlogy(st.present[i], 1-gamma[i]) + jsXlogy(st.notCaught[i], q[i]) + jsXlogy(st.released[i], chi[i])
 		if i < k-1 {
 			ll += jsXlogy(st.alive[i], phi[i])
@@ -364,7 +436,9 @@ func (m *robustModel) start() []float64 {
 		if tr := m.st.hits[i] + m.st.miss[i]; tr > 0 && m.st.hits[i] > 0 {
 			p = math.Min(0.9, m.st.hits[i]/tr)
 		}
-		x[m.oP+i] = estimators.Logit(p)
+		for _, j := range m.st.groups[i] {
+			x[m.oP+m.pIndex(j)] = estimators.Logit(p)
+		}
 		pstar := 1 - math.Pow(1-p, m.st.s[i])
 		x[m.oU+i] = math.Log(m.st.u[i]*(1-pstar)/pstar + 1)
 	}
@@ -387,7 +461,7 @@ type robustQuantity struct {
 
 func (m *robustModel) quantities() []robustQuantity {
 	k, st := m.k, m.st
-	pstar := func(p []float64, i int) float64 { return 1 - math.Pow(1-p[i], st.s[i]) }
+	pstar := func(p []float64, i int) float64 { return 1 - m.missAll(p, i) }
 	nAt := func(p, U []float64, i int) float64 { return U[i] + ratio(st.present[i], pstar(p, i)) }
 	hvar := func(i int) func(p, _ []float64) float64 {
 		return func(p, _ []float64) float64 {
@@ -407,8 +481,16 @@ func (m *robustModel) quantities() []robustQuantity {
 		}
 	}
 	for i := 0; i < k; i++ {
-		q = append(q, robustQuantity{name: fmt.Sprintf("p[%d]", i+1), identifiable: true, primaries: []int{i},
-			f: func(_, _, p, _ []float64) float64 { return p[i] }})
+		if !m.mt {
+			j := st.groups[i][0]
+			q = append(q, robustQuantity{name: fmt.Sprintf("p[%d]", i+1), identifiable: true, primaries: []int{i},
+				f: func(_, _, p, _ []float64) float64 { return p[j] }})
+			continue
+		}
+		for s, j := range st.groups[i] {
+			q = append(q, robustQuantity{name: fmt.Sprintf("p[%d,%d]", i+1, s+1), identifiable: true, primaries: []int{i},
+				f: func(_, _, p, _ []float64) float64 { return p[j] }})
+		}
 	}
 	for i := 0; i < k; i++ {
 		q = append(q, robustQuantity{name: fmt.Sprintf("p*[%d]", i+1), identifiable: true, primaries: []int{i},
@@ -436,7 +518,7 @@ func (m *robustModel) evaluate(x []float64, qs []robustQuantity) ([]float64, []f
 	k := m.k
 	phi := make([]float64, k-1)
 	gamma := make([]float64, k)
-	p := make([]float64, k)
+	p := make([]float64, m.t)
 	U := make([]float64, k)
 	m.params(x, phi, gamma, p, U)
 	out := make([]float64, len(qs))
@@ -463,6 +545,11 @@ func (m *robustModel) reducedCov(x []float64) (*mat.SymDense, []string) {
 			at, name = math.Exp(x[i]) < 1e-6, fmt.Sprintf("N[%d]", i-m.oU+1)
 		case i >= m.oP:
 			at, name = math.Abs(x[i]) > 9.9, fmt.Sprintf("p[%d]", i-m.oP+1)
+			if m.mt {
+				j := i - m.oP
+				pi := m.st.occPrimary[j]
+				name = fmt.Sprintf("p[%d,%d]", pi+1, j-m.st.groups[pi][0]+1)
+			}
 		case i >= m.oGamma:
 			at, name = math.Abs(x[i]) > 9.9, fmt.Sprintf("gamma[%d]", i-m.oGamma+2)
 		default:
@@ -510,7 +597,7 @@ func (m *robustModel) result(name string, fit *estimators.Fit, groups [][]int) *
 		Params:        m.nx,
 		SampleSize:    m.st.animals,
 		Assumptions: []string{
-			"The population is closed within each primary period, and every animal present has the same capture probability on each of its secondary occasions (model M0 within primaries).",
+			"The population is closed within each primary period, and every animal present has the same capture probability on a secondary occasion (the same on every secondary with M0 within primaries, varying by secondary with Mt).",
 			"Between primary periods every animal has the same survival probability; survival is apparent (death and permanent emigration are not told apart).",
 			"Temporary emigration, when modelled, is random: whether an animal is away during a primary does not depend on where it was before.",
 			"Marks are not lost or misread; animals act independently; animals lost on capture leave the population.",
@@ -600,7 +687,14 @@ func (m *robustModel) result(name string, fit *estimators.Fit, groups [][]int) *
 	out := &RobustMLResult{Result: res}
 	for i := 0; i < k; i++ {
 		rp := RobustMLPrimary{Primary: i + 1, Caught: m.st.caught[i], Marked: int(m.st.present[i]),
-			P: named[fmt.Sprintf("p[%d]", i+1)], PStar: named[fmt.Sprintf("p*[%d]", i+1)], N: named[fmt.Sprintf("N[%d]", i+1)]}
+			PStar: named[fmt.Sprintf("p*[%d]", i+1)], N: named[fmt.Sprintf("N[%d]", i+1)]}
+		if m.mt {
+			for s := range groups[i] {
+				rp.P = append(rp.P, named[fmt.Sprintf("p[%d,%d]", i+1, s+1)])
+			}
+		} else {
+			rp.P = []estimators.Named{named[fmt.Sprintf("p[%d]", i+1)]}
+		}
 		for _, j := range groups[i] {
 			rp.Occasions = append(rp.Occasions, j+1)
 		}

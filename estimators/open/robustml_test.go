@@ -65,20 +65,32 @@ func TestRobustMLAgainstScipy(t *testing.T) {
 	}
 	want := map[string]map[string]float64{}
 	for _, ln := range strings.Split(strings.TrimSpace(string(ref)), "\n")[1:] {
-		f := strings.Split(ln, ",")
-		v, _ := strconv.ParseFloat(f[2], 64)
-		if want[f[0]] == nil {
-			want[f[0]] = map[string]float64{}
+		// model,name,estimate; a name such as p[1,2] holds a comma.
+		first, last := strings.Index(ln, ","), strings.LastIndex(ln, ",")
+		model, name := ln[:first], ln[first+1:last]
+		v, err := strconv.ParseFloat(ln[last+1:], 64)
+		if err != nil {
+			t.Fatalf("bad reference line %q", ln)
 		}
-		want[f[0]][f[1]] = v
+		if want[model] == nil {
+			want[model] = map[string]float64{}
+		}
+		want[model][name] = v
 	}
 	maxDiff := 0.0
-	for _, em := range []string{NoEmigration, RandomEmigration} {
-		r, err := RobustDesignML(h, primary, em)
+	for _, model := range []RobustModel{{NoEmigration, false}, {RandomEmigration, false}, {NoEmigration, true}, {RandomEmigration, true}} {
+		r, err := RobustDesignML(h, primary, model)
 		if err != nil {
 			t.Fatal(err)
 		}
+		em := model.Emigration
+		if model.TimeWithin {
+			em += "-mt"
+		}
 		w := want[em]
+		if w == nil {
+			t.Fatalf("no scipy reference for %s", em)
+		}
 		// The maximised log-likelihood from scipy.optimize.minimize on the
 		// script's animal-by-animal likelihood (same constants).
 		if math.Abs(r.Result.LogLik-w["loglik"]) > 1e-4 {
@@ -123,11 +135,11 @@ func TestRobustMLRecoversTruth(t *testing.T) {
 	}{{"emigration 0.3", 0.3, 1997}, {"no emigration", 0, 1995}} {
 		rng := rand.New(rand.NewPCG(tc.seed, 4))
 		h, primary, alive, present := robustSimulate(rng, robustSim{primaries: 5, secondaries: 4, initial: 1500, births: 500, phi: 0.75, p: 0.35, gamma: tc.gamma, loss: 0.01})
-		none, err := RobustDesignML(h, primary, NoEmigration)
+		none, err := RobustDesignML(h, primary, RobustModel{Emigration: NoEmigration})
 		if err != nil {
 			t.Fatal(err)
 		}
-		random, err := RobustDesignML(h, primary, RandomEmigration)
+		random, err := RobustDesignML(h, primary, RobustModel{Emigration: RandomEmigration})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -164,6 +176,47 @@ func TestRobustMLRecoversTruth(t *testing.T) {
 	}
 }
 
+// TestRobustMLTimeWithin: capture probability varies strongly between
+// secondary occasions (0.15, 0.5, 0.3, 0.6); AICc prefers Mt within
+// primaries, whose p[i,s], N and phi are recovered.
+func TestRobustMLTimeWithin(t *testing.T) {
+	rng := rand.New(rand.NewPCG(1978, 5))
+	ps := []float64{0.15, 0.5, 0.3, 0.6}
+	h, primary, alive, _ := robustSimulate(rng, robustSim{primaries: 4, secondaries: 4, initial: 1200, births: 400, phi: 0.7, pBySecondary: ps})
+	m0, err := RobustDesignML(h, primary, RobustModel{Emigration: NoEmigration})
+	if err != nil {
+		t.Fatal(err)
+	}
+	mt, err := RobustDesignML(h, primary, RobustModel{Emigration: NoEmigration, TimeWithin: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	sel := estimators.Select([]*estimators.Result{m0.Result, mt.Result}, 1, 0)
+	t.Logf("best %s, ΔAICc %.1f", sel.Rows[0].Result.Method, sel.Rows[1].Delta)
+	if sel.Rows[0].Result != mt.Result {
+		t.Errorf("AICc prefers %s", sel.Rows[0].Result.Method)
+	}
+	if k := mt.Result.Params; k != 3+16+4 {
+		t.Errorf("Mt within primaries: K = %d, want (K-1) + T + K = 23", k)
+	}
+	for i, rp := range mt.Primaries {
+		if len(rp.P) != 4 {
+			t.Fatalf("primary %d: %d capture probabilities, want 4", i+1, len(rp.P))
+		}
+		for s, p := range rp.P {
+			if math.Abs(p.Estimate-ps[s]) > 3*p.SE || p.SE <= 0 {
+				t.Errorf("%s = %.3f (SE %.3f), truth %.2f", p.Name, p.Estimate, p.SE, ps[s])
+			}
+		}
+		if d := math.Abs(rp.N.Estimate - float64(alive[i])); d > 3*rp.N.SE {
+			t.Errorf("primary %d: N = %.1f (SE %.1f), truth %d", i+1, rp.N.Estimate, rp.N.SE, alive[i])
+		}
+		if rp.Phi != nil && math.Abs(rp.Phi.Estimate-0.7) > 3*rp.Phi.SE {
+			t.Errorf("phi[%d] = %.3f (SE %.3f), truth 0.7", i+1, rp.Phi.Estimate, rp.Phi.SE)
+		}
+	}
+}
+
 // TestRobustMLMatchesAdHoc: both use M0-type within-primary information,
 // so on large data without heterogeneity the joint likelihood and the
 // two-stage estimates of phi (before the last interval) and N agree
@@ -171,7 +224,7 @@ func TestRobustMLRecoversTruth(t *testing.T) {
 func TestRobustMLMatchesAdHoc(t *testing.T) {
 	rng := rand.New(rand.NewPCG(3, 3))
 	h, primary, _, _ := robustSimulate(rng, robustSim{primaries: 4, secondaries: 5, initial: 2000, births: 600, phi: 0.7, p: 0.3})
-	ml, err := RobustDesignML(h, primary, NoEmigration)
+	ml, err := RobustDesignML(h, primary, RobustModel{Emigration: NoEmigration})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -207,13 +260,13 @@ func TestRobustMLBadInput(t *testing.T) {
 		{"single secondary", h, []int{0, 0, 1, 2, 3, 3}, NoEmigration, estimators.ErrTooFewOccasions},
 		{"no recaptures across primaries", mustHistories(t, []string{"110000", "001100", "000011"}, nil), []int{0, 0, 1, 1, 2, 2}, NoEmigration, estimators.ErrNoRecaptures},
 	} {
-		_, err := RobustDesignML(tc.h, tc.primary, tc.model)
+		_, err := RobustDesignML(tc.h, tc.primary, RobustModel{Emigration: tc.model})
 		if !errors.Is(err, tc.want) {
 			t.Errorf("%s: err = %v, want %v", tc.name, err, tc.want)
 		}
 	}
 	// Tiny data: a fit with flagged boundaries or a clear error; never NaN.
-	r, err := RobustDesignML(h, []int{0, 0, 1, 1, 2, 2}, RandomEmigration)
+	r, err := RobustDesignML(h, []int{0, 0, 1, 1, 2, 2}, RobustModel{Emigration: RandomEmigration})
 	if err != nil {
 		if !errors.Is(err, estimators.ErrNotConverged) {
 			t.Fatalf("tiny data: %v", err)
@@ -230,7 +283,7 @@ func TestRobustMLBadInput(t *testing.T) {
 func ExampleRobustDesignML() {
 	rng := rand.New(rand.NewPCG(1997, 4))
 	h, primary, _, _ := robustSimulate(rng, robustSim{primaries: 4, secondaries: 4, initial: 800, births: 300, phi: 0.75, p: 0.35, gamma: 0.3})
-	r, err := RobustDesignML(h, primary, RandomEmigration)
+	r, err := RobustDesignML(h, primary, RobustModel{Emigration: RandomEmigration})
 	if err != nil {
 		fmt.Println(err)
 		return
@@ -267,7 +320,7 @@ func TestRobustMLCoverage(t *testing.T) {
 	cover, total := map[string]int{}, map[string]int{}
 	for r := 0; r < reps; r++ {
 		h, primary, _, present := robustSimulate(rng, robustSim{primaries: 4, secondaries: 4, initial: 400, births: 150, phi: 0.7, p: 0.35, gamma: 0.25})
-		res, err := RobustDesignML(h, primary, RandomEmigration)
+		res, err := RobustDesignML(h, primary, RobustModel{Emigration: RandomEmigration})
 		if err != nil {
 			t.Fatal(err)
 		}

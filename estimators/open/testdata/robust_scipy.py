@@ -1,14 +1,15 @@
 #!/usr/bin/python3
 """Independent maximum-likelihood fit of the robust-design model of
 robustml.go (Kendall, Pollock & Brownie 1995; random temporary emigration
-of Kendall, Nichols & Hines 1997) with M0 within primary periods.
+of Kendall, Nichols & Hines 1997) with M0 or Mt within primary periods.
 
 The log-likelihood is written animal by animal (robustml.go collects it
 into per-primary totals):
 
   first captures, primary i: lnG(U_i+1) - lnG(U_i-u_i+1)
-      + sum over animals first caught in i of [(s-1) ln(1-p_i) + ln p_i]
-      + S_i (U_i - u_i) ln(1-p_i)
+      + sum over animals first caught in i at secondary s of
+        [sum_{s' < s} ln(1-p_is') + ln p_is]
+      + (U_i - u_i) sum_s ln(1-p_is)
   each animal after its first capture: Bernoulli(p) on the later
       secondaries of that primary; for each later primary up to its last
       capture: phi, then (1-gamma) * Bernoulli(p) on every secondary if
@@ -17,7 +18,8 @@ into per-primary totals):
 
 It is maximised with scipy.optimize.minimize (BFGS from several starts,
 Nelder-Mead polish) for emigration "none" and "random" (gamma_K =
-gamma_{K-1}). Output: the maximised log-likelihood and phi, gamma, p and
+gamma_{K-1}), each with M0 (one p per primary) or Mt (one p per secondary
+occasion, labels with "-mt") within primaries. Output: the maximised log-likelihood and phi, gamma, p and
 N_i = U_i + m_i / p*_i.
 
 Run with Debian's python3-scipy:
@@ -77,7 +79,11 @@ for f, l, caught in FIRST:
             MARKED[i] += 1
 
 
-def unpack(x, random):
+T = len(PRIMARY)
+
+
+def unpack(x, random, mt):
+    """phi (K-1), gamma (K), p per occasion (T), U (K)."""
     phi = expit(x[: K - 1])
     off = K - 1
     gamma = np.zeros(K)
@@ -86,14 +92,20 @@ def unpack(x, random):
         gamma[1: K - 1] = g
         gamma[K - 1] = g[-1]
         off += K - 2
-    p = expit(x[off: off + K])
-    U = U_SEEN + np.exp(x[off + K: off + 2 * K])
+    if mt:
+        p = expit(x[off: off + T])
+        off += T
+    else:
+        pk = expit(x[off: off + K])
+        p = np.array([pk[i] for i, g in enumerate(GROUPS) for _ in g])
+        off += K
+    U = U_SEEN + np.exp(x[off: off + K])
     return phi, gamma, p, U
 
 
-def loglik(x, random):
-    phi, gamma, p, U = unpack(x, random)
-    q = gamma + (1 - gamma) * (1 - p) ** np.array(S)
+def loglik(x, random, mt):
+    phi, gamma, p, U = unpack(x, random, mt)
+    q = np.array([gamma[i] + (1 - gamma[i]) * np.prod([1 - p[j] for j in GROUPS[i]]) for i in range(K)])
 
     def chi(i):
         if i == K - 1:
@@ -103,7 +115,7 @@ def loglik(x, random):
     ll = 0.0
     for i in range(K):
         ll += gammaln(U[i] + 1) - gammaln(U[i] - U_SEEN[i] + 1)
-        ll += S[i] * (U[i] - U_SEEN[i]) * math.log(1 - p[i])
+        ll += (U[i] - U_SEEN[i]) * sum(math.log(1 - p[j]) for j in GROUPS[i])
     for row, lost, (f, l, caught) in zip(H, LOST, FIRST):
         last_occ = max(j for j in range(len(row)) if row[j])
         done = False
@@ -113,13 +125,13 @@ def loglik(x, random):
         for s, j in enumerate(GROUPS[f]):
             if not started:
                 if row[j]:
-                    ll += s * math.log(1 - p[f]) + math.log(p[f])
+                    ll += sum(math.log(1 - p[jb]) for jb in GROUPS[f][:s]) + math.log(p[j])
                     started = True
                     if lost and j == last_occ:
                         done = True
                         break
                 continue
-            ll += math.log(p[f]) if row[j] else math.log(1 - p[f])
+            ll += math.log(p[j]) if row[j] else math.log(1 - p[j])
             if lost and j == last_occ:
                 done = True
                 break
@@ -132,7 +144,7 @@ def loglik(x, random):
                 continue
             ll += math.log(1 - gamma[i])
             for j in GROUPS[i]:
-                ll += math.log(p[i]) if row[j] else math.log(1 - p[i])
+                ll += math.log(p[j]) if row[j] else math.log(1 - p[j])
                 if lost and j == last_occ:
                     done = True
                     break
@@ -141,9 +153,9 @@ def loglik(x, random):
     return ll
 
 
-def fit(random):
-    k = (K - 1) + (K - 2 if random else 0) + 2 * K
-    neg = lambda x: -loglik(x, random)
+def fit(random, mt):
+    k = (K - 1) + (K - 2 if random else 0) + (T if mt else K) + K
+    neg = lambda x: -loglik(x, random, mt)
     best = None
     for start in (0.0, -0.5, 0.5):
         x0 = np.full(k, start)
@@ -154,25 +166,30 @@ def fit(random):
         r = minimize(neg, r.x, method="BFGS", options={"gtol": 1e-9, "maxiter": 5000})
         if best is None or r.fun < best.fun:
             best = r
-    phi, gamma, p, U = unpack(best.x, random)
+    phi, gamma, p, U = unpack(best.x, random, mt)
     out = {"loglik": -best.fun}
     for i in range(K - 1):
         out[f"phi[{i + 1}]"] = phi[i]
     if random:
         for i in range(1, K):
             out[f"gamma[{i + 1}]"] = gamma[i]
-    for i in range(K):
-        out[f"p[{i + 1}]"] = p[i]
-    for i in range(K):
-        pstar = 1 - (1 - p[i]) ** S[i]
+    for i, g in enumerate(GROUPS):
+        if mt:
+            for s, j in enumerate(g):
+                out[f"p[{i + 1},{s + 1}]"] = p[j]
+        else:
+            out[f"p[{i + 1}]"] = p[g[0]]
+    for i, g in enumerate(GROUPS):
+        pstar = 1 - np.prod([1 - p[j] for j in g])
         out[f"N[{i + 1}]"] = U[i] + MARKED[i] / pstar
     return out
 
 
 def main():
     print("model,name,estimate")
-    for label, random in (("none", False), ("random", True)):
-        for name, v in fit(random).items():
+    for label, random, mt in (("none", False, False), ("random", True, False),
+                              ("none-mt", False, True), ("random-mt", True, True)):
+        for name, v in fit(random, mt).items():
             print(f"{label},{name},{v!r}")
 
 
