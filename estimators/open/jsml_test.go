@@ -275,6 +275,9 @@ func TestJSMLModelsAndSelection(t *testing.T) {
 			}
 		}
 	}
+	if _, _, _, err := JollySeberMLModels(mustHistories(t, []string{"100", "010", "001"}, nil), 1); !errors.Is(err, estimators.ErrNoRecaptures) {
+		t.Errorf("no recaptures: err = %v", err)
+	}
 	sel3 := estimators.Select([]*estimators.Result{fits[0].Result, fits[1].Result}, 3, 0)
 	if sel3.CriterionName != "QAICc" {
 		t.Errorf("c-hat 3 gives %s", sel3.CriterionName)

@@ -68,7 +68,7 @@ type RobustResult struct {
 //
 // This is the ad hoc two-stage approach of Pollock (1982), not the joint
 // likelihood of Kendall, Pollock & Brownie (1995) or Kendall, Nichols &
-// Hines (1997), which RobustDesignML fits (with M0 only within primaries):
+// Hines (1997), which RobustDesignML fits (with M0 or Mt within primaries):
 //
 //  1. Within each primary, the histories of the animals caught in it, on
 //     its secondary occasions, are fitted with closed.M0 and closed.Mh
@@ -96,8 +96,8 @@ type RobustResult struct {
 // p*_K is the way the robust design separates them (Pollock 1982). With
 // temporary emigration the product is phi_{K-1} (1-gamma_K) p*_K, so this
 // ad hoc last survival estimates phi_{K-1} (1-gamma_K): it is biased low
-// unless nobody is away during the last primary (noted on the result). gamma_i
-// is the ad hoc estimate of random temporary emigration: under random
+// unless nobody is away during the last primary (noted on the result).
+// gamma_i is the ad hoc estimate of random temporary emigration: under random
 // temporary emigration the CJS capture probability estimates (1-gamma_i)
 // p*_i while the closed model estimates p*_i for the animals present
 // (Kendall, Nichols & Hines 1997). It is reported where both are
