@@ -291,20 +291,20 @@ func (g *GOF) finish() {
 		if g.Components[a].Group != g.Components[b].Group {
 			return g.Components[a].Group < g.Components[b].Group
 		}
-		ra, rb := componentRank(g.Components[a].Test), componentRank(g.Components[b].Test)
+		ra, rb := gofComponentRank(g.Components[a].Test), gofComponentRank(g.Components[b].Test)
 		if ra != rb {
 			return ra < rb
 		}
 		return g.Components[a].Occasion < g.Components[b].Occasion
 	})
 
-	g.SR = total(Test3SR, g.Components, Test3SR)
-	g.SM = total(Test3SM, g.Components, Test3SM)
-	g.CT = total(Test2CT, g.Components, Test2CT)
-	g.CL = total(Test2CL, g.Components, Test2CL)
-	g.Test3 = total("TEST 3", g.Components, Test3SR, Test3SM)
-	g.Test2 = total("TEST 2", g.Components, Test2CT, Test2CL)
-	g.Overall = total("TEST 2 + TEST 3", g.Components, Test3SR, Test3SM, Test2CT, Test2CL)
+	g.SR = gofTotalOf(Test3SR, g.Components, Test3SR)
+	g.SM = gofTotalOf(Test3SM, g.Components, Test3SM)
+	g.CT = gofTotalOf(Test2CT, g.Components, Test2CT)
+	g.CL = gofTotalOf(Test2CL, g.Components, Test2CL)
+	g.Test3 = gofTotalOf("TEST 3", g.Components, Test3SR, Test3SM)
+	g.Test2 = gofTotalOf("TEST 2", g.Components, Test2CT, Test2CL)
+	g.Overall = gofTotalOf("TEST 2 + TEST 3", g.Components, Test3SR, Test3SM, Test2CT, Test2CL)
 
 	g.Assumptions = []string{
 		"The tests check the Cormack-Jolly-Seber model phi(t) p(t): every marked animal alive at an occasion has the same chance to be caught and to survive to the next, whatever its past captures.",
@@ -353,7 +353,7 @@ func (g *GOF) finish() {
 	}
 }
 
-func componentRank(t string) int {
+func gofComponentRank(t string) int {
 	switch t {
 	case Test3SR:
 		return 0
@@ -366,7 +366,7 @@ func componentRank(t string) int {
 	}
 }
 
-func total(name string, comps []GOFComponent, tests ...string) GOFTotal {
+func gofTotalOf(name string, comps []GOFComponent, tests ...string) GOFTotal {
 	t := GOFTotal{Name: name}
 	for _, c := range comps {
 		if !c.Tested {
@@ -623,7 +623,7 @@ func FisherExact2x2(a, b, c, d int) float64 {
 	lo := max(0, c1-r2)
 	hi := min(r1, c1)
 	logP := func(x int) float64 {
-		return lchoose(r1, x) + lchoose(r2, c1-x) - lchoose(n, c1)
+		return gofLchoose(r1, x) + gofLchoose(r2, c1-x) - gofLchoose(n, c1)
 	}
 	obs := logP(a)
 	p := 0.0
@@ -636,7 +636,7 @@ func FisherExact2x2(a, b, c, d int) float64 {
 	return math.Min(1, p)
 }
 
-func lchoose(n, k int) float64 {
+func gofLchoose(n, k int) float64 {
 	a, _ := math.Lgamma(float64(n + 1))
 	b, _ := math.Lgamma(float64(k + 1))
 	c, _ := math.Lgamma(float64(n - k + 1))

@@ -356,14 +356,14 @@ func (m *jsModel) grad(g, x []float64) {
 	}
 	gPsi := make([]float64, t)
 	for j := t - 1; j >= 0; j-- {
-		gPsi[j] = ratio(st.u[j], psi[j]) - w*p[j]
+		gPsi[j] = jsRatio(st.u[j], psi[j]) - w*p[j]
 		if j < t-1 {
 			gPsi[j] += gPsi[j+1] * (1 - p[j]) * phi[j]
 		}
 	}
 	gChi := make([]float64, t)
 	for j := 0; j < t; j++ {
-		gChi[j] = ratio(st.released[j], chi[j])
+		gChi[j] = jsRatio(st.released[j], chi[j])
 		if j > 0 {
 			gChi[j] += gChi[j-1] * phi[j-1] * (1 - p[j])
 		}
@@ -382,7 +382,7 @@ func (m *jsModel) grad(g, x []float64) {
 		g[m.oEta+j-1] = b[j] * (gPsi[j] - sb)
 	}
 	for j := 0; j < t; j++ {
-		d := ratio(st.n[j], p[j]) - ratio(st.miss[j], 1-p[j]) - w*psi[j]
+		d := jsRatio(st.n[j], p[j]) - jsRatio(st.miss[j], 1-p[j]) - w*psi[j]
 		if j < t-1 {
 			d -= gPsi[j+1] * psi[j] * phi[j]
 		}
@@ -392,7 +392,7 @@ func (m *jsModel) grad(g, x []float64) {
 		g[m.oP+m.pIndex(j)] += d * p[j] * (1 - p[j])
 	}
 	for j := 0; j < t-1; j++ {
-		d := ratio(st.alive[j], phi[j]) + gPsi[j+1]*psi[j]*(1-p[j]) + gChi[j]*(-1+(1-p[j+1])*chi[j+1])
+		d := jsRatio(st.alive[j], phi[j]) + gPsi[j+1]*psi[j]*(1-p[j]) + gChi[j]*(-1+(1-p[j+1])*chi[j+1])
 		k := 0
 		if m.phiS == Time {
 			k = j
@@ -471,8 +471,8 @@ func (m *jsModel) reducedCov(x []float64) (*mat.SymDense, []string) {
 	return full, fixed
 }
 
-// ratio is c/v with 0/0 = 0 (a count of zero contributes nothing).
-func ratio(c, v float64) float64 {
+// jsRatio is c/v with 0/0 = 0 (a count of zero contributes nothing).
+func jsRatio(c, v float64) float64 {
 	if c == 0 {
 		return 0
 	}

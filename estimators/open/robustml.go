@@ -462,11 +462,11 @@ type robustQuantity struct {
 func (m *robustModel) quantities() []robustQuantity {
 	k, st := m.k, m.st
 	pstar := func(p []float64, i int) float64 { return 1 - m.missAll(p, i) }
-	nAt := func(p, U []float64, i int) float64 { return U[i] + ratio(st.present[i], pstar(p, i)) }
+	nAt := func(p, U []float64, i int) float64 { return U[i] + jsRatio(st.present[i], pstar(p, i)) }
 	hvar := func(i int) func(p, _ []float64) float64 {
 		return func(p, _ []float64) float64 {
 			ps := pstar(p, i)
-			return ratio(st.present[i]*(1-ps), ps*ps)
+			return jsRatio(st.present[i]*(1-ps), ps*ps)
 		}
 	}
 	var q []robustQuantity
