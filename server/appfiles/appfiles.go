@@ -50,7 +50,7 @@ func New(fsys fs.FS, version string) (*Handler, error) {
 		case "sw.js":
 			f.body = bytes.ReplaceAll(body, []byte(versionPlaceholder), []byte(version))
 			f.noCache = true
-		case "index.html", "manifest.webmanifest":
+		case "index.html", "manifest.webmanifest", "coord/index.html":
 			f.noCache = true
 		}
 		sum := sha256.Sum256(f.body)
@@ -88,6 +88,9 @@ func (h *Handler) lookup(urlPath string) (file, bool) {
 		p = "/index.html"
 	}
 	f, ok := h.files[p]
+	if !ok && strings.HasSuffix(urlPath, "/") { // a folder's page, e.g. /coord/
+		f, ok = h.files[p+"/index.html"]
+	}
 	return f, ok
 }
 
