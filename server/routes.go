@@ -40,6 +40,9 @@ func (s *Server) routes() []route {
 		{http.MethodGet, "/api/v1/studies/:study/stations", s.listStations, "the study's stations"},
 		{http.MethodPost, "/api/v1/studies/:study/stations", s.addStation, "add one station (409 if the ID exists)"},
 		{http.MethodPut, "/api/v1/studies/:study/stations", s.replaceStations, "replace all stations"},
+		{http.MethodGet, "/api/v1/studies/:study/checks", s.studyChecks, "data checks: problems in the records, each naming the records involved"},
+		{http.MethodGet, "/api/v1/studies/:study/estimates", s.studyEstimates, "estimates for the study's design, with the data checks that affect them"},
+		{http.MethodGet, "/api/v1/studies/:study/summary", s.studySummary, "animals, captures, recapture rate, sex ratio, age structure"},
 
 		{http.MethodGet, "/api/v1/studies/:study/captures", s.listCaptures, "captures, filtered by occasion, station, tag, species; paged with limit and cursor"},
 		{http.MethodPost, "/api/v1/studies/:study/captures", s.createCapture, "create a capture; answers with the record and its findings"},
