@@ -360,6 +360,12 @@ function wireEditor() {
 
 const compared = ["tag_id", "old_tag_id", "event", "captured_at", "occasion", "station_id", "species", "sex", "age", "mass_g", "fate", "observer", "device", "notes", "measurements", "lat", "lon"];
 
+function fieldLabel(f) {
+  const e = editable.find(([name]) => name === f);
+  if (e) return e[1];
+  return { measurements: "Measurements", lat: "Latitude (°)", lon: "Longitude (°)" }[f] || f;
+}
+
 function shown(v) {
   if (v === undefined || v === null || v === "") return "—";
   if (typeof v === "object") return JSON.stringify(v);
@@ -391,7 +397,7 @@ function conflictCard(row) {
     const vals = row.leaves.map((l) => shown(l[f]));
     const differs = new Set(vals).size > 1;
     if (!differs && vals[0] === "—") continue;
-    const tr = h("tr", { class: differs ? "differs" : "" }, h("td", {}, f));
+    const tr = h("tr", { class: differs ? "differs" : "", "data-field": f }, h("td", {}, fieldLabel(f)));
     row.leaves.forEach((l, i) => {
       if (!differs) {
         tr.append(h("td", {}, vals[i]));
@@ -490,7 +496,7 @@ async function viewDevices() {
 
 function valueCells(v, digits) {
   if (!v) return [h("td", { class: "n" }, "–"), h("td", { class: "n" }, "–"), h("td", { class: "n" }, "–")];
-  return [h("td", { class: "n" }, num(v.estimate, digits)), h("td", { class: "n" }, num(v.se, digits)), h("td", { class: "n" }, ci(v, digits))];
+  return [h("td", { class: "n" }, num(v.estimate, digits)), h("td", { class: "n" }, num(v.se, digits)), h("td", { class: "n nowrap" }, ci(v, digits))];
 }
 
 function cautionBox(ans) {
@@ -541,7 +547,7 @@ function closedSection(rep) {
     if (v) body.append(h("tr", { class: "avg" }, h("td", {}, label), ...nCells(v), h("td", { colspan: 3 })));
   }
   const table = h("div", { class: "panel" },
-    h("div", { class: "scroll" }, h("table", { id: "model-table" },
+    h("div", { class: "scroll" }, h("table", { id: "model-table", class: "dense" },
       h("thead", {}, h("tr", {}, ["Model", "N", "SE", "95% CI", t.criterion_name, `Δ${t.criterion_name}`, "Weight"].map((x, i) => h("th", { class: i ? "n" : "" }, x)))),
       body)),
     h("p", { class: "small muted" }, "Intervals: ", [...keys].map(([kind, k], i) => `${i ? "; " : ""}${k} ${kind}`).join(""), "."));
@@ -580,7 +586,7 @@ function jsSection(js) {
   const cell = (v, d) => valueCells(v, d);
   const nodes = [h("h2", {}, "Jolly-Seber estimates by occasion"),
     h("p", { class: "small muted" }, `${js.method}. N: animals alive in the area at the occasion; φ (phi): probability of surviving and staying from one occasion to the next; B: animals joining between this occasion and the next; p: capture probability.`),
-    h("div", { class: "scroll" }, h("table", { id: "js-table" },
+    h("div", { class: "scroll" }, h("table", { id: "js-table", class: "dense" },
       h("thead", {}, h("tr", {}, ["Occasion", "n", "m", "R", "N", "SE", "95% CI", "φ", "SE", "95% CI", "B", "SE", "95% CI", "p", "SE", "95% CI"].map((x, i) => h("th", { class: i ? "n" : "" }, x)))),
       h("tbody", {}, occ.map((o) => h("tr", {}, h("td", {}, String(o.occasion)), h("td", { class: "n" }, String(o.n)), h("td", { class: "n" }, String(o.m)), h("td", { class: "n" }, String(o.R)),
         ...cell(o.N, 1), ...cell(o.phi, 3), ...cell(o.B, 1), ...cell(o.p, 3))))))];
@@ -636,7 +642,7 @@ function cjsSection(cjs, gof) {
 
 function robustSection(rb) {
   const nodes = [h("h2", {}, "Robust design by primary period"), h("p", { class: "small muted" }, rb.method),
-    h("div", { class: "scroll" }, h("table", { id: "robust-table" },
+    h("div", { class: "scroll" }, h("table", { id: "robust-table", class: "dense" },
       h("thead", {}, h("tr", {}, ["Primary", "Caught", "N", "SE", "95% CI", "φ to next", "SE", "95% CI", "B", "SE", "95% CI"].map((x, i) => h("th", { class: i ? "n" : "" }, x)))),
       h("tbody", {}, rb.primaries.map((p) => h("tr", {}, h("td", {}, String(p.primary)), h("td", { class: "n" }, String(p.caught)), ...valueCells(p.N, 1), ...valueCells(p.phi, 3), ...valueCells(p.B, 1))))))];
   const ns = rb.primaries.filter((p) => p.N).map((p) => ({ x: p.primary, est: p.N.estimate, low: p.N.ci_low, high: p.N.ci_high }));
