@@ -3,6 +3,8 @@ package server
 import (
 	"fmt"
 	"net/http"
+	"sort"
+	"strings"
 
 	"github.com/labstack/echo/v4"
 
@@ -92,8 +94,13 @@ func estimateCautions(rep *analysis.Report, affecting, open int) []string {
 	if rep.Animals > 0 && rep.Animals < 20 {
 		out = append(out, fmt.Sprintf("Only %d animals have been caught: standard errors and intervals from so few animals are rough.", rep.Animals))
 	}
-	for section, why := range rep.Errors {
-		out = append(out, fmt.Sprintf("Not computed (%s): %s.", section, why))
+	sections := make([]string, 0, len(rep.Errors))
+	for section := range rep.Errors {
+		sections = append(sections, section)
+	}
+	sort.Strings(sections)
+	for _, section := range sections {
+		out = append(out, fmt.Sprintf("Not computed (%s): %s.", strings.ReplaceAll(section, "_", " "), rep.Errors[section]))
 	}
 	out = append(out, "Estimates rest on the assumptions listed with each method; if the field work broke one (for example animals left the area during a closed study), the numbers can be biased whatever their intervals say.")
 	return out
