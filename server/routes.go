@@ -43,12 +43,20 @@ func (s *Server) routes() []route {
 		{http.MethodGet, "/api/v1/studies/:study/checks", s.studyChecks, "data checks: problems in the records, each naming the records involved"},
 		{http.MethodGet, "/api/v1/studies/:study/estimates", s.studyEstimates, "estimates for the study's design, with the data checks that affect them"},
 		{http.MethodGet, "/api/v1/studies/:study/summary", s.studySummary, "animals, captures, recapture rate, sex ratio, age structure"},
+		{http.MethodGet, "/api/v1/studies/:study/devices", s.studyDevices, "devices named on the records: counts, last capture, last push, conflicts"},
+		{http.MethodGet, "/api/v1/studies/:study/conflicts", s.studyConflicts, "records with unresolved edit conflicts and every version to choose from"},
 
 		{http.MethodGet, "/api/v1/studies/:study/captures", s.listCaptures, "captures, filtered by occasion, station, tag, species; paged with limit and cursor"},
 		{http.MethodPost, "/api/v1/studies/:study/captures", s.createCapture, "create a capture; answers with the record and its findings"},
 		{http.MethodGet, "/api/v1/studies/:study/captures/:id", s.getCapture, "one capture (deleted ones too)"},
 		{http.MethodPut, "/api/v1/studies/:study/captures/:id", s.updateCapture, "replace a capture's body"},
 		{http.MethodDelete, "/api/v1/studies/:study/captures/:id", s.deleteCapture, "mark a capture deleted (kept, can be reviewed)"},
+
+		{http.MethodGet, "/api/v1/studies/:study/captures/:id/history", s.captureHistory, "every revision of a capture, its leaves and provisional winner"},
+		{http.MethodPost, "/api/v1/studies/:study/captures/:id/resolve", s.resolveCapture, "end a conflict with a revision whose parents are all the leaves"},
+		{http.MethodGet, "/api/v1/sync", s.syncInfo, "this server's replica ID and change-feed epoch"},
+		{http.MethodPost, "/api/v1/sync/push", s.syncPush, "push a batch of revisions; a status per revision after the commit"},
+		{http.MethodGet, "/api/v1/sync/pull", s.syncPull, "revisions after a cursor, one page, with the next cursor"},
 
 		{http.MethodGet, backupPath, s.backup, "download a consistent copy of the data file (from this machine only)"},
 	}

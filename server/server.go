@@ -24,6 +24,8 @@ type Server struct {
 
 	// studyMu serialises read-modify-write edits of studies (editStudy).
 	studyMu sync.Mutex
+
+	sync syncState // the sync engine, opened on first use (sync.go)
 }
 
 // New makes a server over an open store. It validates cfg. The caller keeps

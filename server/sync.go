@@ -1,0 +1,169 @@
+package server
+
+import (
+	"errors"
+	"net/http"
+	"strconv"
+	stdsync "sync"
+
+	"github.com/labstack/echo/v4"
+
+	"tagtally/capture"
+	tsync "tagtally/sync"
+)
+
+// syncState holds the sync engine of the server's store, opened on first
+// use (Open reads the replica ID and decides the feed epoch).
+type syncState struct {
+	once stdsync.Once
+	eng  *tsync.Engine
+	err  error
+}
+
+// engine returns the sync engine. Pushes use the store's Batch, so
+// concurrent phones share commits (PERFORMANCE.md).
+func (s *Server) engine() (*tsync.Engine, error) {
+	s.sync.once.Do(func() {
+		s.sync.eng, s.sync.err = tsync.Open(s.store, &tsync.Options{Batch: true})
+		if s.sync.err == nil {
+			s.log.Info("sync", "replica", s.sync.eng.Replica(), "epoch", s.sync.eng.Epoch(), "note", s.sync.eng.EpochNote)
+		}
+	})
+	return s.sync.eng, s.sync.err
+}
+
+// SyncEngine returns the server's sync engine, for the scheduled peer sync
+// of `tagtally serve`.
+func (s *Server) SyncEngine() (*tsync.Engine, error) { return s.engine() }
+
+// syncError turns sync's sentinels into answers the error handler knows.
+func syncError(err error) error {
+	switch {
+	case errors.Is(err, tsync.ErrTooLarge):
+		return echo.NewHTTPError(http.StatusRequestEntityTooLarge, err.Error())
+	case errors.Is(err, tsync.ErrBadCursor), errors.Is(err, tsync.ErrBadRevision):
+		return badRequest("", "%v", err)
+	case errors.Is(err, tsync.ErrStaleLeaves), errors.Is(err, tsync.ErrMissingParent):
+		return echo.NewHTTPError(http.StatusConflict, err.Error())
+	}
+	return err
+}
+
+// syncInfo answers GET /api/v1/sync: this replica's ID and feed epoch.
+func (s *Server) syncInfo(c echo.Context) error {
+	eng, err := s.engine()
+	if err != nil {
+		return err
+	}
+	return c.JSON(http.StatusOK, map[string]string{"replica": eng.Replica(), "epoch": eng.Epoch()})
+}
+
+// syncPush answers POST /api/v1/sync/push with a status per revision, after
+// the commit. A bad revision is rejected alone; a body over the limits or
+// not of the push form is refused whole.
+func (s *Server) syncPush(c echo.Context) error {
+	eng, err := s.engine()
+	if err != nil {
+		return err
+	}
+	batch, err := tsync.DecodePush(c.Request().Body)
+	if err != nil {
+		var mbe *http.MaxBytesError
+		if errors.As(err, &mbe) {
+			return mbe
+		}
+		return syncError(err)
+	}
+	reply, err := eng.Push(batch)
+	if err != nil {
+		return err
+	}
+	for _, r := range reply.Results {
+		if r.Warning != "" {
+			s.log.Warn("sync push", "source", batch.Source, "capture", r.CaptureID, "revision", r.Revision, "warning", r.Warning)
+		}
+	}
+	return c.JSON(http.StatusOK, reply)
+}
+
+// syncPull answers GET /api/v1/sync/pull?cursor=&study=&skip_source=&limit=
+// with one page of the change feed.
+func (s *Server) syncPull(c echo.Context) error {
+	eng, err := s.engine()
+	if err != nil {
+		return err
+	}
+	req := tsync.PullRequest{Cursor: c.QueryParam("cursor"), Study: c.QueryParam("study"), SkipSource: c.QueryParam("skip_source")}
+	if v := c.QueryParam("limit"); v != "" {
+		n, err := strconv.Atoi(v)
+		if err != nil || n < 1 || n > tsync.MaxPullLimit {
+			return badRequest("limit", "limit must be a whole number from 1 to %d", tsync.MaxPullLimit)
+		}
+		req.Limit = n
+	}
+	page, err := eng.Pull(req)
+	if err != nil {
+		return syncError(err)
+	}
+	return c.JSON(http.StatusOK, page)
+}
+
+// captureHistory answers GET .../captures/:id/history: every revision of
+// the record ever accepted, its leaves and its provisional winner.
+func (s *Server) captureHistory(c echo.Context) error {
+	eng, err := s.engine()
+	if err != nil {
+		return err
+	}
+	h, err := eng.History(c.Param("study"), c.Param("id"))
+	if err != nil {
+		return err
+	}
+	return c.JSON(http.StatusOK, h)
+}
+
+// resolveRequest is the body of POST .../captures/:id/resolve. Leaves are
+// the leaf revision IDs the coordinator looked at (the history's leaves);
+// Capture is the chosen body, or null to keep the provisional winner's;
+// Deleted resolves the record as deleted.
+type resolveRequest struct {
+	Leaves  []string         `json:"leaves"`
+	Capture *capture.Capture `json:"capture"`
+	Deleted bool             `json:"deleted"`
+}
+
+// resolveCapture answers POST .../captures/:id/resolve with the stored
+// resolution; 409 when the leaves changed since the coordinator read them.
+func (s *Server) resolveCapture(c echo.Context) error {
+	eng, err := s.engine()
+	if err != nil {
+		return err
+	}
+	var req resolveRequest
+	if err := bindJSON(c, &req); err != nil {
+		return err
+	}
+	if len(req.Leaves) == 0 {
+		return badRequest("leaves", "name the leaf revisions being resolved (from the record's history)")
+	}
+	body := req.Capture
+	if req.Deleted {
+		if body == nil {
+			h, err := eng.History(c.Param("study"), c.Param("id"))
+			if err != nil {
+				return err
+			}
+			for _, r := range h.Revisions {
+				if r.Revision.ID == h.Winner {
+					body = &r
+				}
+			}
+		}
+		body.Revision.Deleted = true
+	}
+	rec, fs, err := eng.Resolve(c.Param("study"), c.Param("id"), body, req.Leaves)
+	if err != nil {
+		return syncError(err)
+	}
+	return c.JSON(http.StatusOK, captureAnswer{rec, orEmpty(fs)})
+}
