@@ -289,10 +289,8 @@ func (s *Store) CreateCapture(c *Capture) (*Capture, Findings, error) {
 		if fs, err = tx.Prepare(rec); err != nil {
 			return err
 		}
-		if _, err := tx.GetCapture(rec.StudyID, rec.ID); err == nil {
+		if tx.exists(rec.StudyID, rec.ID) {
 			return fmt.Errorf("capture %s: %w: a record with this ID exists", rec.ID, ErrConflict)
-		} else if !errors.Is(err, ErrNotFound) {
-			return err
 		}
 		return tx.PutCaptureRaw(rec)
 	})
@@ -387,7 +385,11 @@ func (s *Store) PutCaptures(batch []Capture) ([]Findings, error) {
 			if err != nil {
 				return fmt.Errorf("record %d of the batch: %w", i+1, err)
 			}
-			if old, err := tx.GetCapture(rec.StudyID, rec.ID); err == nil {
+			if tx.exists(rec.StudyID, rec.ID) {
+				old, err := tx.GetCapture(rec.StudyID, rec.ID)
+				if err != nil {
+					return fmt.Errorf("record %d of the batch: %w", i+1, err)
+				}
 				if old.Revision.Deleted {
 					return fmt.Errorf("record %d of the batch: capture %s: %w: it is deleted", i+1, rec.ID, ErrConflict)
 				}

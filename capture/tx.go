@@ -54,8 +54,10 @@ func (s *Store) View(fn func(tx *Tx) error) error {
 func newTx(btx *bolt.Tx) *Tx {
 	t := &Tx{tx: btx, caps: btx.Bucket(bucketCaptures), tags: btx.Bucket(bucketTags)}
 	if btx.Writable() {
+		// Only the captures bucket: its keys are time-ordered. Tag-index
+		// keys arrive in tag order, effectively at random, where bbolt's
+		// default split point wastes less (measured: BenchmarkPutCaptures).
 		t.caps.FillPercent = fillPercent
-		t.tags.FillPercent = fillPercent
 	}
 	return t
 }
@@ -110,6 +112,13 @@ func (t *Tx) GetCapture(studyID, id string) (*Capture, error) {
 		return nil, fmt.Errorf("capture %s: stored record unreadable: %w", u, err)
 	}
 	return c, nil
+}
+
+// exists reports whether a capture with this study and canonical ID is
+// stored, without decoding it.
+func (t *Tx) exists(studyID, id string) bool {
+	u, err := uuid.Parse(id)
+	return err == nil && t.caps.Get(captureKeyRaw(studyID, u[:])) != nil
 }
 
 // ForEachCapture calls fn with each capture of a study (deleted ones
@@ -289,7 +298,7 @@ func unixNano(t time.Time) int64 {
 }
 
 type tagRef struct {
-	id      []byte // 16-byte UUID (a copy)
+	id      [16]byte
 	kind    byte
 	event   byte
 	fate    byte
@@ -310,11 +319,9 @@ func (t *Tx) refsFor(studyID, tag string) []tagRef {
 		if len(k) != len(prefix)+16 || len(v) != refLen {
 			continue
 		}
-		out = append(out, tagRef{
-			id:   append([]byte(nil), k[len(prefix):]...),
-			kind: v[0], event: v[1], fate: v[2], deleted: v[3] == 1,
-			at: int64(be64(v[4:])),
-		})
+		r := tagRef{kind: v[0], event: v[1], fate: v[2], deleted: v[3] == 1, at: int64(be64(v[4:]))}
+		copy(r.id[:], k[len(prefix):])
+		out = append(out, r)
 	}
 	return out
 }
@@ -326,7 +333,7 @@ func (t *Tx) indexFindings(c *Capture) Findings {
 	others := func(tag string) []tagRef {
 		var out []tagRef
 		for _, r := range t.refsFor(c.StudyID, tag) {
-			if !r.deleted && !bytes.Equal(r.id, self[:]) {
+			if !r.deleted && r.id != self {
 				out = append(out, r)
 			}
 		}
