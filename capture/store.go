@@ -486,7 +486,7 @@ func (s *Store) ListCaptures(studyID string, f Filter) ([]Capture, string, error
 			k, _ := cur.Seek(prefix)
 			if after != nil {
 				k, _ = cur.Seek(append(append([]byte{}, prefix...), after...))
-				if k != nil && bytes.Equal(k[len(k)-16:], after) {
+				if k != nil && len(k) == len(prefix)+16 && bytes.Equal(k[len(prefix):], after) {
 					k, _ = cur.Next()
 				}
 			}
