@@ -238,9 +238,10 @@ func (s *Store) GetStudy(id string) (*Study, error) {
 	return st, err
 }
 
-// ListStudies returns every study, ordered by ID.
+// ListStudies returns every study, ordered by ID (an empty, non-nil slice
+// when there is none).
 func (s *Store) ListStudies() ([]Study, error) {
-	var out []Study
+	out := []Study{} // never nil: encodes as [] in JSON
 	err := s.db.View(func(tx *bolt.Tx) error {
 		return tx.Bucket(bucketStudies).ForEach(func(k, v []byte) error {
 			var st Study
@@ -431,8 +432,9 @@ type Filter struct {
 
 // ListCaptures returns one page of a study's captures in key order (UUID
 // v7 IDs are time-ordered, so roughly the order they were created) and the
-// cursor for the next page, "" after the last. ErrNotFound if the study
-// does not exist.
+// cursor for the next page, "" after the last. The page is never nil.
+// ErrNotFound if the study does not exist; a cursor that is not a capture
+// ID is a *ValidationError on field "after".
 func (s *Store) ListCaptures(studyID string, f Filter) ([]Capture, string, error) {
 	limit := f.Limit
 	if limit <= 0 {
@@ -449,7 +451,7 @@ func (s *Store) ListCaptures(studyID string, f Filter) ([]Capture, string, error
 		}
 		after = u[:]
 	}
-	var page []Capture
+	page := []Capture{} // never nil: encodes as [] in JSON
 	next := ""
 	err := s.db.View(func(btx *bolt.Tx) error {
 		if _, err := getStudy(btx, studyID); err != nil {

@@ -137,6 +137,12 @@ func TestCaptureRoundTrip(t *testing.T) {
 	if err != nil || !del.Revision.Deleted {
 		t.Errorf("after delete: %+v, %v", del, err)
 	}
+	if err := s.DeleteCapture(got.StudyID, got.ID); err != nil {
+		t.Errorf("second delete: %v", err)
+	}
+	if err := s.DeleteCapture(got.StudyID, "0190b8a0-0000-7000-8000-000000000000"); !errors.Is(err, capture.ErrNotFound) {
+		t.Errorf("delete of an unknown capture: got %v, want ErrNotFound", err)
+	}
 	if _, _, err := s.UpdateCapture(del); !errors.Is(err, capture.ErrConflict) {
 		t.Errorf("update of a deleted capture: got %v, want ErrConflict", err)
 	}
