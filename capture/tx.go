@@ -43,6 +43,19 @@ func (s *Store) Update(fn func(tx *Tx) error) error {
 	})
 }
 
+// Batch runs fn in a read-write transaction that bbolt may share with
+// other concurrent Batch calls (DB.Batch): one commit and one fsync for
+// several requests. fn may run more than once (when another function in the
+// same batch fails, each is retried alone), so it must be idempotent and
+// must not report results before Batch returns. Call it once per request
+// (a whole pushed batch), never once per record: with a single caller it
+// only adds bbolt's batch delay (PERFORMANCE.md).
+func (s *Store) Batch(fn func(tx *Tx) error) error {
+	return s.db.Batch(func(btx *bolt.Tx) error {
+		return fn(newTx(btx))
+	})
+}
+
 // View runs fn in a read-only transaction. Any number of View calls run
 // concurrently with each other and with one Update.
 func (s *Store) View(fn func(tx *Tx) error) error {

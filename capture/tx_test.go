@@ -194,3 +194,33 @@ func TestCheckFindsStaleIndex(t *testing.T) {
 		t.Errorf("Check missed a capture without its tag-index entry")
 	}
 }
+
+// TestBatchConcurrent: concurrent Batch calls each commit their record,
+// and a failing one does not take the others down.
+func TestBatchConcurrent(t *testing.T) {
+	s := openWithStudy(t)
+	const n = 8
+	errs := make(chan error, n)
+	for i := 0; i < n; i++ {
+		go func(i int) {
+			errs <- s.Batch(func(tx *capture.Tx) error {
+				if i == 3 {
+					return errors.New("refused")
+				}
+				c := newCapture("BF-0001", capture.EventRecapture, 1)
+				c.ID = uuidFor(100 + i)
+				return tx.PutCaptureRaw(c)
+			})
+		}(i)
+	}
+	failed := 0
+	for i := 0; i < n; i++ {
+		if err := <-errs; err != nil {
+			failed++
+		}
+	}
+	all, err := s.Captures("fen-grid-2025", true)
+	if err != nil || failed != 1 || len(all) != n-1 {
+		t.Errorf("%d failed, %d stored (%v); want 1 and %d", failed, len(all), err, n-1)
+	}
+}
