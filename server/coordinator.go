@@ -4,11 +4,15 @@ import (
 	"net/http"
 	"slices"
 	"sort"
+	"strings"
+	stdsync "sync"
 	"time"
 
 	"github.com/labstack/echo/v4"
 
 	"tagtally/capture"
+	"tagtally/pwa"
+	"tagtally/server/appfiles"
 )
 
 // deviceRow is one device of GET .../devices: what the study's records say
@@ -146,4 +150,28 @@ func (s *Server) studyConflicts(c echo.Context) error {
 		out = append(out, row)
 	}
 	return c.JSON(http.StatusOK, map[string]any{"study_id": studyID, "conflicts": out})
+}
+
+// appState holds the handler of the embedded app files, made on first use.
+type appState struct {
+	once stdsync.Once
+	h    http.Handler
+	err  error
+}
+
+var app appState
+
+// appFiles answers GET for every path no other route takes: the phone app
+// (pwa/static) and the coordinator's pages under /coord/, with the
+// caching rules of package appfiles. Unknown API paths stay JSON 404s.
+func (s *Server) appFiles(c echo.Context) error {
+	if strings.HasPrefix(c.Request().URL.Path, "/api/") {
+		return echo.ErrNotFound
+	}
+	app.once.Do(func() { app.h, app.err = appfiles.New(pwa.Files(), pwa.Version()) })
+	if app.err != nil {
+		return app.err
+	}
+	app.h.ServeHTTP(c.Response(), c.Request())
+	return nil
 }

@@ -3,8 +3,6 @@ package server
 import (
 	"context"
 	"fmt"
-	"net/http"
-	"net/http/httptest"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -18,8 +16,6 @@ import (
 
 	"tagtally/capture"
 	"tagtally/demo"
-	"tagtally/pwa"
-	"tagtally/server/appfiles"
 )
 
 // chromiumPath finds Debian's chromium (or TAGTALLY_CHROMIUM). Without
@@ -102,26 +98,6 @@ func browser(t *testing.T) context.Context {
 	return ctx
 }
 
-// withApp serves the API and the embedded app files from one address, as
-// the camp server does.
-func withApp(t *testing.T, srv *Server) *httptest.Server {
-	t.Helper()
-	app, err := appfiles.New(pwa.Files(), pwa.Version())
-	if err != nil {
-		t.Fatal(err)
-	}
-	api := srv.Handler()
-	hs := httptest.NewServer(http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
-		if strings.HasPrefix(r.URL.Path, "/api/") || r.URL.Path == "/healthz" {
-			api.ServeHTTP(w, r)
-			return
-		}
-		app.ServeHTTP(w, r)
-	}))
-	t.Cleanup(hs.Close)
-	return hs
-}
-
 // page drives one tab and fails the test on the first error.
 type page struct {
 	t   *testing.T
@@ -192,7 +168,7 @@ func (p page) shot(name string, full bool) {
 func TestCoordinatorPagesInBrowser(t *testing.T) {
 	ds := newDemoServer(t)
 	conflictID := makeConflict(t, ds)
-	hs := withApp(t, ds.srv)
+	hs := ds.Server // the API and the embedded app, as the camp server serves them
 	p := page{t: t, ctx: browser(t), dir: screenshotDir(t)}
 
 	// Data checks: the demo's five deliberate problems and the conflict.

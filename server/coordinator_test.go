@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"net/http"
 	"path/filepath"
+	"strings"
 	"testing"
 	"time"
 
@@ -187,6 +188,32 @@ func TestCoordinatorUnknownStudy(t *testing.T) {
 		resp.Body.Close()
 		if resp.StatusCode != http.StatusNotFound {
 			t.Errorf("%s of a missing study: %d, want 404", p, resp.StatusCode)
+		}
+	}
+}
+
+// The coordinator's pages are served at /coord/ from the embedded app;
+// unknown API paths keep their JSON 404.
+func TestAppFilesServed(t *testing.T) {
+	ds := newDemoServer(t)
+	for _, tc := range []struct {
+		path, wantType, cache string
+		status                int
+	}{
+		{"/coord/", "text/html", "no-cache", http.StatusOK},
+		{"/coord/coord.js", "text/javascript", "", http.StatusOK},
+		{"/", "text/html", "no-cache", http.StatusOK},
+		{"/api/v1/no-such-thing", "application/json", "", http.StatusNotFound},
+		{"/coord/no-such-file.js", "", "", http.StatusNotFound},
+	} {
+		resp, err := ds.Client().Get(ds.URL + tc.path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		resp.Body.Close()
+		if resp.StatusCode != tc.status || !strings.HasPrefix(resp.Header.Get("Content-Type"), tc.wantType) ||
+			(tc.cache != "" && resp.Header.Get("Cache-Control") != tc.cache) {
+			t.Errorf("GET %s: %d %q %q", tc.path, resp.StatusCode, resp.Header.Get("Content-Type"), resp.Header.Get("Cache-Control"))
 		}
 	}
 }

@@ -59,5 +59,6 @@ func (s *Server) routes() []route {
 		{http.MethodGet, "/api/v1/sync/pull", s.syncPull, "revisions after a cursor, one page, with the next cursor"},
 
 		{http.MethodGet, backupPath, s.backup, "download a consistent copy of the data file (from this machine only)"},
+		{http.MethodGet, "/*", s.appFiles, "the phone app and the coordinator's pages (/coord/), embedded"},
 	}
 }
