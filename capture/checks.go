@@ -183,8 +183,10 @@ func (s *Store) Checks(studyID string) ([]Check, error) {
 //   - clock_skew: per device, records whose capture time is more than
 //     SkewAhead after their revision stamp (the hybrid logical clock
 //     reading written by sync, see Revision.Stamp), or every one of at
-//     least SkewMinRecords stamped records more than SkewBehind before
-//     it; records without a readable stamp are skipped;
+//     least SkewMinRecords records whose revision the device stamped
+//     itself more than SkewBehind before it (a record edited later on
+//     another device says nothing of this one's clock); records without
+//     a readable stamp are skipped;
 //   - edit_conflict: a record whose revisions conflict (Revision.Conflict).
 func RunChecks(st *Study, caps []Capture) []Check {
 	recs := make([]*Capture, 0, len(caps))
@@ -590,6 +592,10 @@ func (ck *checker) perDevice(recs []*Capture) {
 	type lagged struct {
 		c   *Capture
 		lag time.Duration // stamp minus captured_at
+		// own: the revision was stamped by the capturing device itself
+		// (or names no device), so a long lag says something about that
+		// device rather than about a later edit elsewhere.
+		own bool
 	}
 	byDevice := map[string][]lagged{}
 	var order []string
@@ -604,33 +610,33 @@ func (ck *checker) perDevice(recs []*Capture) {
 		if byDevice[c.Device] == nil {
 			order = append(order, c.Device)
 		}
-		byDevice[c.Device] = append(byDevice[c.Device], lagged{c, t.Sub(c.CapturedAt)})
+		own := c.Revision.Device == "" || c.Revision.Device == c.Device
+		byDevice[c.Device] = append(byDevice[c.Device], lagged{c, t.Sub(c.CapturedAt), own})
 	}
 	sort.Strings(order)
 	for _, dev := range order {
 		ls := byDevice[dev]
-		var ahead []*Capture
+		var ahead, own []*Capture
 		var most time.Duration
-		minLag := ls[0].lag
+		minLag := time.Duration(1<<63 - 1)
 		for _, l := range ls {
 			if -l.lag > SkewAhead {
 				ahead = append(ahead, l.c)
 				most = max(most, -l.lag)
 			}
-			minLag = min(minLag, l.lag)
+			if l.own {
+				own = append(own, l.c)
+				minLag = min(minLag, l.lag)
+			}
 		}
 		if len(ahead) > 0 {
 			ck.add(CheckClockSkew, fmt.Sprintf("Device %s: %d of its %d stamped records have a capture time later than the moment the record was written, by up to %s. The device's clock (or the typed time) is probably ahead.",
 				dev, len(ahead), len(ls), roundDur(most)), ahead, nil, []string{dev}, 0)
 			continue
 		}
-		if len(ls) >= SkewMinRecords && minLag > SkewBehind {
-			all := make([]*Capture, len(ls))
-			for i, l := range ls {
-				all[i] = l.c
-			}
-			ck.add(CheckClockSkew, fmt.Sprintf("Device %s: every one of its %d stamped records was written at least %s after its capture time. Its clock may be behind, or the records were entered later from paper.",
-				dev, len(ls), roundDur(minLag)), all, nil, []string{dev}, 0)
+		if len(own) >= SkewMinRecords && minLag > SkewBehind {
+			ck.add(CheckClockSkew, fmt.Sprintf("Device %s: every one of the %d records it stamped itself was written at least %s after its capture time. Its clock may be behind, or the records were entered later from paper.",
+				dev, len(own), roundDur(minLag)), own, nil, []string{dev}, 0)
 		}
 	}
 }

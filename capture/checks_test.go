@@ -178,6 +178,17 @@ func TestRunChecksEachCheck(t *testing.T) {
 			chk(2, "BF-0002", capture.EventNewMark, 2, 0, func(c *capture.Capture) { c.Revision.Stamp = stamp(chkTime(2, 0).Add(7 * time.Hour)) }),
 			chk(3, "BF-0003", capture.EventNewMark, 3, 0, func(c *capture.Capture) { c.Revision.Stamp = stamp(chkTime(3, 0).Add(8 * time.Hour)) }),
 		}, []found{{capture.CheckClockSkew, []string{id(1), id(2), id(3)}, []string{"BF-0001", "BF-0002", "BF-0003"}}}},
+		{"records edited later at camp say nothing of the phone's clock", []capture.Capture{
+			chk(1, "BF-0001", capture.EventNewMark, 1, 0, func(c *capture.Capture) {
+				c.Revision.Stamp = stamp(chkTime(1, 0).Add(7 * time.Hour))
+				c.Revision.Device = "camp"
+			}),
+			chk(2, "BF-0002", capture.EventNewMark, 2, 0, func(c *capture.Capture) {
+				c.Revision.Stamp = stamp(chkTime(2, 0).Add(7 * time.Hour))
+				c.Revision.Device = "camp"
+			}),
+			chk(3, "BF-0003", capture.EventNewMark, 3, 0, func(c *capture.Capture) { c.Revision.Stamp = stamp(chkTime(3, 0).Add(8 * time.Hour)) }),
+		}, []found{}},
 		{"two late records are too few to judge a clock", []capture.Capture{
 			chk(1, "BF-0001", capture.EventNewMark, 1, 0, func(c *capture.Capture) { c.Revision.Stamp = stamp(chkTime(1, 0).Add(7 * time.Hour)) }),
 			chk(2, "BF-0002", capture.EventNewMark, 2, 0, func(c *capture.Capture) { c.Revision.Stamp = stamp(chkTime(2, 0).Add(7 * time.Hour)) }),
