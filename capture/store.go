@@ -186,10 +186,21 @@ func (s *Store) Path() string { return s.path }
 // tag; every capture is indexed). It returns the first problem found.
 func (s *Store) Check() error {
 	return s.db.View(func(tx *bolt.Tx) error {
+		// Drain the channel: bbolt's checker goroutine blocks on every
+		// error until it is read.
+		var first error
 		for err := range tx.Check() {
-			return fmt.Errorf("capture store: bbolt check: %w", err)
+			if first == nil {
+				first = fmt.Errorf("capture store: bbolt check: %w", err)
+			}
 		}
-		return checkIndex(tx)
+		if first != nil {
+			return first
+		}
+		if err := checkIndex(tx); err != nil {
+			return fmt.Errorf("capture store: %w", err)
+		}
+		return nil
 	})
 }
 
