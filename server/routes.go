@@ -57,6 +57,7 @@ func (s *Server) routes() []route {
 		{http.MethodGet, "/api/v1/sync", s.syncInfo, "this server's replica ID and change-feed epoch"},
 		{http.MethodPost, "/api/v1/sync/push", s.syncPush, "push a batch of revisions; a status per revision after the commit"},
 		{http.MethodGet, "/api/v1/sync/pull", s.syncPull, "revisions after a cursor, one page, with the next cursor"},
+		{http.MethodPost, "/api/v1/sync/peer", s.syncWithPeer, "sync with another tagtally server now (from this machine only)"},
 
 		{http.MethodGet, backupPath, s.backup, "download a consistent copy of the data file (from this machine only)"},
 		{http.MethodGet, "/*", s.appFiles, "the phone app and the coordinator's pages (/coord/), embedded"},

@@ -2,6 +2,7 @@ package server
 
 import (
 	"errors"
+	"net"
 	"net/http"
 	"strconv"
 	stdsync "sync"
@@ -166,4 +167,44 @@ func (s *Server) resolveCapture(c echo.Context) error {
 		return syncError(err)
 	}
 	return c.JSON(http.StatusOK, captureAnswer{rec, orEmpty(fs)})
+}
+
+// peerRequest is the body of POST /api/v1/sync/peer.
+type peerRequest struct {
+	URL      string `json:"url"`
+	Token    string `json:"token"`
+	Study    string `json:"study"`
+	PageSize int    `json:"page_size"`
+}
+
+// syncWithPeer answers POST /api/v1/sync/peer: this server pulls from and
+// pushes to another tagtally server now, resuming from its stored
+// checkpoints, and answers with what moved. `tagtally sync --server` uses
+// it when this server holds the data file. Like the backup download, it
+// is answered only for requests from this machine: it makes the server
+// contact an address the caller chooses.
+func (s *Server) syncWithPeer(c echo.Context) error {
+	host, _, err := net.SplitHostPort(c.Request().RemoteAddr)
+	if ip := net.ParseIP(host); err != nil || ip == nil || !ip.IsLoopback() {
+		return echo.NewHTTPError(http.StatusForbidden, "a peer sync can be started only on the server's own machine: run `tagtally sync` there")
+	}
+	eng, err := s.engine()
+	if err != nil {
+		return err
+	}
+	var req peerRequest
+	if err := bindJSON(c, &req); err != nil {
+		return err
+	}
+	if req.URL == "" {
+		return badRequest("url", "give the peer's base URL, e.g. http://10.0.0.2:8080")
+	}
+	rep, err := eng.SyncPeer(c.Request().Context(), tsync.Peer{URL: req.URL, Token: req.Token, Study: req.Study, PageSize: req.PageSize})
+	if err != nil {
+		if errors.Is(err, tsync.ErrPeer) {
+			return echo.NewHTTPError(http.StatusBadGateway, err.Error())
+		}
+		return err
+	}
+	return c.JSON(http.StatusOK, rep)
 }

@@ -23,6 +23,7 @@ var commands = []command{
 	{"serve", "run the base-camp server for phones and the coordinator", runServe},
 	{"demo", "add the invented demonstration study to the data file", runDemo},
 	{"backup", "copy the data file safely, even while the server runs", runBackup},
+	{"sync", "sync records with another tagtally server", runSync},
 	{"version", "print the tagtally version", runVersion},
 	{"estimate", "estimate population size from capture histories", runEstimate},
 }
