@@ -26,6 +26,10 @@ type Report struct {
 	Captures  int            `json:"captures"`
 	Occasions []int          `json:"occasions"`
 
+	// Histories are the capture histories the estimates were computed
+	// from (not sent as JSON: the animals list can be long).
+	Histories *capture.HistorySet `json:"-"`
+
 	Summary []capture.OccasionSummary `json:"summary"`
 	MArray  *capture.MArray           `json:"m_array"`
 
@@ -79,7 +83,7 @@ func FromCaptures(st *capture.Study, caps []capture.Capture) (*Report, error) {
 	}
 	r := &Report{
 		StudyID: st.ID, StudyName: st.Name, Design: st.Design,
-		Animals: len(hs.Animals), Occasions: hs.Occasions,
+		Animals: len(hs.Animals), Occasions: hs.Occasions, Histories: hs,
 		Summary: hs.Summary(), MArray: hs.MArray(),
 		Errors: map[string]string{},
 	}
