@@ -40,7 +40,7 @@ func TestRevisionIDVector(t *testing.T) {
 		StationID: "A1", TagID: "BF-0042", Event: capture.EventRecapture, Species: "bank vole",
 		Sex: capture.SexFemale, Age: capture.AgeAdult, MassG: fp(23.5),
 		Measurements: []capture.Measurement{{Name: "hind foot", Value: 17.25, Unit: "mm"}, {Name: "tail", Value: 40, Unit: "mm"}},
-		Fate: capture.FateReleased, Observer: "crew 3", Device: "phone-7", CapturedAt: at,
+		Fate:         capture.FateReleased, Observer: "crew 3", Device: "phone-7", CapturedAt: at,
 		Lat: fp(-41.2865), Lon: fp(174.7762), AccuracyM: fp(4),
 		Notes:    "ear nick \"left\"; <ok> & fine\tstill étourdi",
 		Revision: capture.Revision{ID: "ignored", Stamp: "ignored", Depth: 9, Conflict: true},

@@ -110,7 +110,7 @@ func (m *memBackend) feedAfter(after uint64, fn func(uint64, feedEntry) (bool, e
 func (m *memBackend) lastSeq() (uint64, error) { return uint64(len(m.feed)), nil }
 
 func (m *memBackend) getMeta(k string) ([]byte, error) { return slices.Clone(m.meta[k]), nil }
-func (m *memBackend) putMeta(k string, v []byte) error  { m.meta[k] = slices.Clone(v); return nil }
+func (m *memBackend) putMeta(k string, v []byte) error { m.meta[k] = slices.Clone(v); return nil }
 
 // newMemEngine makes an engine on a fresh in-memory replica.
 func newMemEngine(device string, studies ...string) (*Engine, *memBackend) {

@@ -163,9 +163,13 @@ func printSyncReport(w io.Writer, peer string, rep *tsync.PeerReport, asJSON boo
 
 // startPeerSync runs a peer sync every interval in the background until
 // ctx ends, logging each result: the scheduled mode for `tagtally serve`
-// (eng is the server's engine, from server.Server.SyncEngine).
-func startPeerSync(ctx context.Context, eng *tsync.Engine, p tsync.Peer, every time.Duration, log *slog.Logger) {
+// (eng is the server's engine, from server.Server.SyncEngine). The
+// returned channel is closed when the loop has stopped; close the store only
+// after that.
+func startPeerSync(ctx context.Context, eng *tsync.Engine, p tsync.Peer, every time.Duration, log *slog.Logger) <-chan struct{} {
+	done := make(chan struct{})
 	go func() {
+		defer close(done)
 		for {
 			rep, err := eng.SyncPeer(ctx, p)
 			if err != nil {
@@ -180,4 +184,5 @@ func startPeerSync(ctx context.Context, eng *tsync.Engine, p tsync.Peer, every t
 			}
 		}
 	}()
+	return done
 }
