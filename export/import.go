@@ -214,6 +214,7 @@ func ParseCaptures(st *capture.Study, t *Table, opts Options) ([]capture.Capture
 	for _, p := range rows {
 		c, probs, line, rec := p.c, p.probs, p.line, p.rec
 		if len(probs) == 0 {
+			capture.DeriveOccasion(st, &c)
 			fs, err := capture.ValidateCapture(st, &c)
 			var ve *capture.ValidationError
 			if errors.As(err, &ve) {
@@ -525,6 +526,7 @@ func ParseOutboxBackup(st *capture.Study, data []byte) ([]capture.Capture, *Repo
 		if c.Device == "" {
 			c.Device = file.Device
 		}
+		capture.DeriveOccasion(st, &c)
 		fs, err := capture.ValidateCapture(st, &c)
 		var ve *capture.ValidationError
 		if errors.As(err, &ve) {

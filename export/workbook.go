@@ -24,12 +24,13 @@ type StudyExport struct {
 	// so the records need not all stay in memory while the sheet streams.
 	EachCapture func(fn func(*capture.Capture) error) error
 	Report      *analysis.Report
+	Checks      []capture.Check
 	Meta        Meta
 }
 
-// LoadStudy reads a study, all its records and its analysis report.
-// checksOpen is the number of open data-check findings to report.
-func LoadStudy(s *capture.Store, studyID string, version string, now time.Time, checksOpen int) (*StudyExport, error) {
+// LoadStudy reads a study, all its records, its analysis report and its
+// data checks.
+func LoadStudy(s *capture.Store, studyID string, version string, now time.Time) (*StudyExport, error) {
 	st, err := s.GetStudy(studyID)
 	if err != nil {
 		return nil, fmt.Errorf("export: %w", err)
@@ -50,11 +51,12 @@ func LoadStudy(s *capture.Store, studyID string, version string, now time.Time, 
 	if err != nil {
 		return nil, fmt.Errorf("export: %w", err)
 	}
+	checks := capture.RunChecks(st, all)
 	each := func(fn func(*capture.Capture) error) error {
 		return s.View(func(tx *capture.Tx) error { return tx.ForEachCapture(studyID, fn) })
 	}
-	return &StudyExport{Study: st, EachCapture: each, Report: rep,
-		Meta: Meta{Version: version, ExportedAt: now.UTC(), OpenChecks: checksOpen, Devices: devices}}, nil
+	return &StudyExport{Study: st, EachCapture: each, Report: rep, Checks: checks,
+		Meta: Meta{Version: version, ExportedAt: now.UTC(), OpenChecks: len(checks), Devices: devices}}, nil
 }
 
 // Sheets lists the workbook's sheets in order; sections that do not apply
@@ -71,7 +73,7 @@ func (e *StudyExport) Sheets() []Sheet {
 			sheets = append(sheets, sh)
 		}
 	}
-	return sheets
+	return append(sheets, ChecksSheet(e.Checks))
 }
 
 // WriteXLSX writes the study's workbook. Write it to a local file: the
@@ -79,4 +81,32 @@ func (e *StudyExport) Sheets() []Sheet {
 // wait on a network client.
 func (e *StudyExport) WriteXLSX(w io.Writer, tmpDir string) error {
 	return WriteXLSX(w, e.Sheets(), tmpDir)
+}
+
+// tableKeys are the short names of the workbook's tables for CSV
+// downloads, in workbook order.
+var tableKeys = map[string]string{
+	"Summary": "summary", "Captures": "captures", "Individuals": "individuals", "Occasions": "occasions",
+	"Closed estimates": "closed", "Open estimates": "open", "Survival models": "survival",
+	"Demography": "demography", "Density": "density", "Data checks": "checks",
+}
+
+// TableNames lists the short names of the tables this study's workbook
+// has, for CSV export.
+func (e *StudyExport) TableNames() []string {
+	var out []string
+	for _, sh := range e.Sheets() {
+		out = append(out, tableKeys[sh.Name])
+	}
+	return out
+}
+
+// Table returns the sheet with the given short name (see TableNames).
+func (e *StudyExport) Table(key string) (Sheet, bool) {
+	for _, sh := range e.Sheets() {
+		if tableKeys[sh.Name] == key {
+			return sh, true
+		}
+	}
+	return Sheet{}, false
 }

@@ -21,7 +21,7 @@ import (
 
 func TestStudyWorkbook(t *testing.T) {
 	s, st := demoStore(t)
-	e, err := LoadStudy(s, st.ID, "test", time.Date(2026, 6, 1, 0, 0, 0, 0, time.UTC), 3)
+	e, err := LoadStudy(s, st.ID, "test", time.Date(2026, 6, 1, 0, 0, 0, 0, time.UTC))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -34,7 +34,7 @@ func TestStudyWorkbook(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer f.Close()
-	want := []string{"Summary", "Captures", "Individuals", "Occasions", "Closed estimates", "Demography", "Density"}
+	want := []string{"Summary", "Captures", "Individuals", "Occasions", "Closed estimates", "Demography", "Density", "Data checks"}
 	got := f.GetSheetList()
 	if fmt.Sprint(got) != fmt.Sprint(want) {
 		t.Fatalf("sheets %v, want %v", got, want)
@@ -47,6 +47,7 @@ func TestStudyWorkbook(t *testing.T) {
 		"Closed estimates": "model",
 		"Demography":       "measure",
 		"Density":          "quantity",
+		"Data checks":      "check",
 	}
 	for sheet, h := range headers {
 		if v, _ := f.GetCellValue(sheet, "A1"); v != h {
@@ -74,7 +75,7 @@ func TestStudyWorkbook(t *testing.T) {
 	rows, _ := f.GetRows("Summary")
 	var sawCheck, sawHandling bool
 	for _, r := range rows {
-		if len(r) > 1 && r[0] == "Open data-check findings" && r[1] == "3" {
+		if len(r) > 1 && r[0] == "Open data-check findings" && r[1] == strconv.Itoa(len(e.Checks)) && len(e.Checks) > 0 {
 			sawCheck = true
 		}
 		if len(r) > 0 && r[0] == "Handling" {
@@ -122,7 +123,7 @@ func BenchmarkExport100k(b *testing.B) {
 				}
 			}
 		}()
-		e, err := LoadStudy(s, st.ID, "bench", time.Now(), 0)
+		e, err := LoadStudy(s, st.ID, "bench", time.Now())
 		if err != nil {
 			b.Fatal(err)
 		}

@@ -33,6 +33,8 @@ type Config struct {
 	// ShutdownTimeout is how long a graceful shutdown waits for requests in
 	// flight before closing their connections.
 	ShutdownTimeout time.Duration
+	// Version is the tagtally version named in exported workbooks.
+	Version string
 	// Logger receives request errors and server events; nil means
 	// slog.Default().
 	Logger *slog.Logger

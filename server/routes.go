@@ -59,6 +59,10 @@ func (s *Server) routes() []route {
 		{http.MethodGet, "/api/v1/sync/pull", s.syncPull, "revisions after a cursor, one page, with the next cursor"},
 		{http.MethodPost, "/api/v1/sync/peer", s.syncWithPeer, "sync with another tagtally server now (from this machine only)"},
 
+		{http.MethodGet, exportPath, s.exportWorkbook, "the study's workbook for the program office (XLSX)"},
+		{http.MethodGet, "/api/v1/studies/:study/export/:table", s.exportTable, "one table as CSV: histories.csv, captures.csv, individuals.csv, occasions.csv, closed.csv, ..."},
+		{http.MethodPost, "/api/v1/studies/:study/import", s.importFile, "import a CSV, XLSX or phone outbox backup (?dry_run=true checks only); a report per row"},
+
 		{http.MethodGet, backupPath, s.backup, "download a consistent copy of the data file (from this machine only)"},
 		{http.MethodGet, "/*", s.appFiles, "the phone app and the coordinator's pages (/coord/), embedded"},
 	}

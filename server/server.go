@@ -45,7 +45,7 @@ func New(store *capture.Store, cfg Config) (*Server, error) {
 	e.Use(limitBody(cfg.MaxBodyBytes))
 	e.Use(middleware.ContextTimeoutWithConfig(middleware.ContextTimeoutConfig{
 		Timeout: cfg.RequestTimeout,
-		Skipper: func(c echo.Context) bool { return c.Path() == backupPath },
+		Skipper: func(c echo.Context) bool { return c.Path() == backupPath || c.Path() == exportPath },
 	}))
 	for _, r := range s.routes() {
 		e.Add(r.method, r.path, r.handler)

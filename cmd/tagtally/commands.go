@@ -26,6 +26,8 @@ var commands = []command{
 	{"sync", "sync records with another tagtally server", runSync},
 	{"version", "print the tagtally version", runVersion},
 	{"estimate", "estimate population size from capture histories", runEstimate},
+	{"export", "write a study as a workbook (XLSX) or CSV files", runExport},
+	{"import", "read older data (CSV, XLSX, phone backup) into a study", runImport},
 }
 
 // version is set at build time with -ldflags "-X main.version=..."; a plain
