@@ -186,7 +186,7 @@ func TestCheckRevisionNeverPanics(t *testing.T) {
 		{ID: "01890a5d-ac96-774b-bcce-b302099a8057", StudyID: "s", TagID: "t", Revision: capture.Revision{Stamp: "00000000000000000000", Parents: []string{"a", "a"}}},
 		{ID: "01890a5d-ac96-774b-bcce-b302099a8057", StudyID: "s", TagID: "t", Revision: capture.Revision{Stamp: "00000000000000000000", Parents: slices.Repeat([]string{"00112233445566778899aabbccddeeff"}, 2)}},
 	} {
-		if err := checkRevision(c); err == nil {
+		if _, err := checkRevision(c); err == nil {
 			t.Errorf("%+v accepted", c)
 		}
 	}

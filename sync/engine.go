@@ -200,17 +200,18 @@ func (e *Engine) ApplyRemote(revs []*capture.Capture, source string) ([]Result, 
 // in one transaction.
 func (e *Engine) apply(revs []*capture.Capture, source string, useBatch bool, extra func(t txn, res []Result) error) ([]Result, error) {
 	pre := make([]Result, len(revs))
-	valid := make([]bool, len(revs))
+	bodies := make([][]byte, len(revs))
 	for i, c := range revs {
 		if c == nil {
 			pre[i] = Result{Status: StatusRejected, Reason: ErrBadRevision.Error() + ": empty"}
 			continue
 		}
-		if err := checkRevision(c); err != nil {
+		body, err := checkRevision(c)
+		if err != nil {
 			pre[i] = Result{CaptureID: c.ID, Revision: c.Revision.ID, Status: StatusRejected, Reason: err.Error()}
 			continue
 		}
-		valid[i] = true
+		bodies[i] = body
 		st, _ := ParseStamp(c.Revision.Stamp) // checked above
 		if ahead := e.clock.Observe(st); ahead > 0 {
 			pre[i].Warning = fmt.Sprintf("stamp is %s ahead of this server's clock: kept as given for ordering, but the server clock did not follow it; check the device's clock", ahead.Round(time.Minute))
@@ -224,11 +225,11 @@ func (e *Engine) apply(revs []*capture.Capture, source string, useBatch bool, ex
 	}
 	err := run(func(t txn) error {
 		res := slices.Clone(pre) // fn may run twice under Batch
-		if err := applyBatch(t, revs, valid, source, res); err != nil {
+		if err := applyBatch(t, revs, bodies, source, res); err != nil {
 			return err
 		}
 		for i := range res {
-			if valid[i] {
+			if bodies[i] != nil {
 				res[i].Warning = pre[i].Warning
 			}
 		}
@@ -468,10 +469,11 @@ func (e *Engine) local(build func(t txn) (*capture.Capture, []string, capture.Fi
 			ID: given, Parents: slices.Clone(parents), Deleted: rec.Revision.Deleted,
 			Stamp: e.clock.Now().String(), Device: e.clock.device,
 		}
-		if err := checkRevision(rec); err != nil {
+		body, err := checkRevision(rec)
+		if err != nil {
 			return err
 		}
-		res, err := merge(t, rec, "")
+		res, err := merge(t, rec, body, "")
 		if err != nil {
 			return err
 		}
@@ -691,11 +693,11 @@ func (e *Engine) Pull(req PullRequest) (*PullPage, error) {
 			if !ok {
 				return false, fmt.Errorf("feed entry %d names revision %s of %s: %w", seq, fe.revID, fe.captureID, errCorrupt)
 			}
-			_, js, err := revHeader(val)
+			js, err := wireJSON(val)
 			if err != nil {
 				return false, err
 			}
-			page.Revisions = append(page.Revisions, append(json.RawMessage(nil), js...))
+			page.Revisions = append(page.Revisions, js)
 			return true, nil
 		})
 		page.More = next < last

@@ -1,7 +1,6 @@
 package sync
 
 import (
-	"encoding/json"
 	"errors"
 	"fmt"
 	"slices"
@@ -76,49 +75,50 @@ const maxParents = 64
 
 // checkRevision checks what can be checked of a revision without storage:
 // identifiers, stamp, parents, and that its ID is the hash of its content.
-// An empty Revision.ID is filled in. It never panics on any input.
-func checkRevision(c *capture.Capture) error {
+// An empty Revision.ID is filled in. It returns the canonical body. It
+// never panics on any input.
+func checkRevision(c *capture.Capture) ([]byte, error) {
 	u, err := uuid.Parse(c.ID)
 	if err != nil {
-		return fmt.Errorf("%w: capture ID %q is not a UUID", ErrBadRevision, c.ID)
+		return nil, fmt.Errorf("%w: capture ID %q is not a UUID", ErrBadRevision, c.ID)
 	}
 	if u.String() != c.ID {
-		return fmt.Errorf("%w: capture ID %q is not in canonical lower-case form %q", ErrBadRevision, c.ID, u.String())
+		return nil, fmt.Errorf("%w: capture ID %q is not in canonical lower-case form %q", ErrBadRevision, c.ID, u.String())
 	}
 	for _, f := range []struct{ name, v string }{{"study_id", c.StudyID}, {"tag_id", c.TagID}, {"old_tag_id", c.OldTagID}, {"revision.device", c.Revision.Device}} {
 		if (f.name == "study_id" || f.name == "tag_id") && strings.TrimSpace(f.v) == "" {
-			return fmt.Errorf("%w: %s is missing", ErrBadRevision, f.name)
+			return nil, fmt.Errorf("%w: %s is missing", ErrBadRevision, f.name)
 		}
 		if len(f.v) > 128 {
-			return fmt.Errorf("%w: %s is longer than 128 bytes", ErrBadRevision, f.name)
+			return nil, fmt.Errorf("%w: %s is longer than 128 bytes", ErrBadRevision, f.name)
 		}
 		for _, r := range f.v {
 			if unicode.IsControl(r) || r == unicode.ReplacementChar {
-				return fmt.Errorf("%w: %s has a control or invalid character", ErrBadRevision, f.name)
+				return nil, fmt.Errorf("%w: %s has a control or invalid character", ErrBadRevision, f.name)
 			}
 		}
 	}
 	if c.Revision.Stamp == "" {
-		return fmt.Errorf("%w: revision.stamp is missing", ErrBadRevision)
+		return nil, fmt.Errorf("%w: revision.stamp is missing", ErrBadRevision)
 	}
 	if _, err := ParseStamp(c.Revision.Stamp); err != nil {
-		return fmt.Errorf("%w: revision.stamp: %w", ErrBadRevision, err)
+		return nil, fmt.Errorf("%w: revision.stamp: %w", ErrBadRevision, err)
 	}
 	ps := c.Revision.Parents
 	if len(ps) > maxParents {
-		return fmt.Errorf("%w: more than %d parents", ErrBadRevision, maxParents)
+		return nil, fmt.Errorf("%w: more than %d parents", ErrBadRevision, maxParents)
 	}
 	for i, p := range ps {
 		if !isRevID(p) {
-			return fmt.Errorf("%w: parent %q is not 32 lower-case hex digits", ErrBadRevision, p)
+			return nil, fmt.Errorf("%w: parent %q is not 32 lower-case hex digits", ErrBadRevision, p)
 		}
 		if slices.Contains(ps[:i], p) {
-			return fmt.Errorf("%w: parent %s is named twice", ErrBadRevision, p)
+			return nil, fmt.Errorf("%w: parent %s is named twice", ErrBadRevision, p)
 		}
 	}
 	body, err := CanonicalBody(c)
 	if err != nil {
-		return err
+		return nil, err
 	}
 	id := revisionID(body, ps, c.Revision.Deleted)
 	switch c.Revision.ID {
@@ -126,13 +126,13 @@ func checkRevision(c *capture.Capture) error {
 		c.Revision.ID = id
 	case id:
 	default:
-		return fmt.Errorf("%w: given %q, content hashes to %s", ErrRevisionID, c.Revision.ID, id)
+		return nil, fmt.Errorf("%w: given %q, content hashes to %s", ErrRevisionID, c.Revision.ID, id)
 	}
 	if slices.Contains(ps, id) {
-		return fmt.Errorf("%w: revision names itself as parent", ErrBadRevision)
+		return nil, fmt.Errorf("%w: revision names itself as parent", ErrBadRevision)
 	}
 	c.Revision.Conflict = false
-	return nil
+	return body, nil
 }
 
 func isRevID(s string) bool {
@@ -172,7 +172,7 @@ func stampLess(s1, d1, s2, d2 string) bool {
 //     when there is more than one leaf;
 //   - every stored revision, and every lowering of a stored revision's
 //     stamp, takes the next feed sequence in the same transaction.
-func merge(t txn, c *capture.Capture, source string) (Result, error) {
+func merge(t txn, c *capture.Capture, body []byte, source string) (Result, error) {
 	res := Result{CaptureID: c.ID, Revision: c.Revision.ID}
 	reject := func(err error, retry bool) (Result, error) {
 		res.Status, res.Reason, res.Retry = StatusRejected, err.Error(), retry
@@ -183,7 +183,7 @@ func merge(t txn, c *capture.Capture, source string) (Result, error) {
 		return res, err
 	} else if ok {
 		res.Status = StatusAlreadyHad
-		h, _, err := revHeader(val)
+		h, err := revHeader(val)
 		if err != nil {
 			return res, fmt.Errorf("revision %s of %s: %w", rid, cid, err)
 		}
@@ -223,7 +223,7 @@ func merge(t txn, c *capture.Capture, source string) (Result, error) {
 		if !ok {
 			return reject(fmt.Errorf("%w: %s", ErrMissingParent, p), true)
 		}
-		h, _, err := revHeader(val)
+		h, err := revHeader(val)
 		if err != nil {
 			return res, fmt.Errorf("revision %s of %s: %w", p, cid, err)
 		}
@@ -231,11 +231,7 @@ func merge(t txn, c *capture.Capture, source string) (Result, error) {
 	}
 	c.Revision.Depth = depth
 	c.Revision.Conflict = false
-	js, err := json.Marshal(c)
-	if err != nil {
-		return reject(fmt.Errorf("%w: %v", ErrBadRevision, err), false)
-	}
-	if err := t.putRevision(cid, rid, encodeRevision(c, js)); err != nil {
+	if err := t.putRevision(cid, rid, encodeRevision(c, body)); err != nil {
 		return res, err
 	}
 	nl := make([]leaf, 0, len(rs.leaves)+1)
@@ -262,16 +258,12 @@ func merge(t txn, c *capture.Capture, source string) (Result, error) {
 
 // lowerStamp replaces a stored revision's stamp by a smaller one.
 func lowerStamp(t txn, cid, rid string, val []byte, stamp, device, source string, res *Result) error {
-	old, err := decodeRevision(val)
+	r, body, err := decodeStored(val)
 	if err != nil {
 		return fmt.Errorf("revision %s of %s: %w", rid, cid, err)
 	}
-	old.Revision.Stamp, old.Revision.Device = stamp, device
-	js, err := json.Marshal(old)
-	if err != nil {
-		return err
-	}
-	if err := t.putRevision(cid, rid, encodeRevision(old, js)); err != nil {
+	r.Stamp, r.Device = stamp, device
+	if err := t.putRevision(cid, rid, encodeRevision(&capture.Capture{Revision: r}, body)); err != nil {
 		return err
 	}
 	rs, _, err := t.record(cid)
@@ -348,19 +340,20 @@ func cloneCapture(c *capture.Capture) *capture.Capture {
 
 // applyBatch merges checked revisions in t in dependency order: a revision
 // whose parent comes later in the same batch is retried after it, so a
-// batch may arrive in any order. results[i] is filled for every i with
-// valid[i]; the others were already rejected by the caller.
-func applyBatch(t txn, revs []*capture.Capture, valid []bool, source string, results []Result) error {
+// batch may arrive in any order. bodies[i] is revision i's canonical body,
+// nil when the caller already rejected it; results[i] is filled for the
+// others.
+func applyBatch(t txn, revs []*capture.Capture, bodies [][]byte, source string, results []Result) error {
 	pending := make([]int, 0, len(revs))
 	for i := range revs {
-		if valid[i] {
+		if bodies[i] != nil {
 			pending = append(pending, i)
 		}
 	}
 	for len(pending) > 0 {
 		var again []int
 		for _, i := range pending {
-			r, err := merge(t, revs[i], source)
+			r, err := merge(t, revs[i], bodies[i], source)
 			if err != nil {
 				return fmt.Errorf("capture %s revision %s: %w", revs[i].ID, revs[i].Revision.ID, err)
 			}

@@ -143,55 +143,121 @@ func decodeRecordState(b []byte) (recordState, error) {
 	return rs, nil
 }
 
-// A stored revision is a small binary header with what the merge rule
-// needs (so that deciding a merge never decodes JSON), then the revision
-// as wire JSON: the capture with its Revision filled in (Conflict false).
+// A stored revision is a binary header with the revision metadata (what
+// the merge rule needs comes first, so deciding a merge never decodes
+// JSON), then the canonical body (see CanonicalBody), which is valid JSON
+// of the capture without its revision:
 //
-//	0x01, uvarint depth, deleted byte, str stamp, str device, JSON
-func encodeRevision(c *capture.Capture, js []byte) []byte {
-	b := make([]byte, 0, len(js)+64)
-	b = append(b, 1)
-	b = binary.AppendUvarint(b, uint64(c.Revision.Depth))
-	if c.Revision.Deleted {
+//	0x02, uvarint depth, deleted byte, str stamp, str device, str ID,
+//	uvarint number of parents, str parent..., canonical body
+//
+// Storing the canonical body, already computed to check the ID, saves
+// encoding the record again.
+func encodeRevision(c *capture.Capture, body []byte) []byte {
+	r := &c.Revision
+	b := make([]byte, 0, len(body)+96+33*len(r.Parents))
+	b = append(b, 2)
+	b = binary.AppendUvarint(b, uint64(r.Depth))
+	if r.Deleted {
 		b = append(b, 1)
 	} else {
 		b = append(b, 0)
 	}
-	b = appendStr(b, c.Revision.Stamp)
-	b = appendStr(b, c.Revision.Device)
-	return append(b, js...)
+	b = appendStr(b, r.Stamp)
+	b = appendStr(b, r.Device)
+	b = appendStr(b, r.ID)
+	b = binary.AppendUvarint(b, uint64(len(r.Parents)))
+	for _, p := range r.Parents {
+		b = appendStr(b, p)
+	}
+	return append(b, body...)
 }
 
-// revHeader decodes a stored revision's header and returns the JSON part.
-func revHeader(b []byte) (l leaf, js []byte, err error) {
-	if len(b) == 0 || b[0] != 1 {
-		return l, nil, errCorrupt
+// revHeader decodes the part of a stored revision the merge rule needs
+// (depth, deleted, stamp, device; not the ID).
+func revHeader(b []byte) (l leaf, err error) {
+	if len(b) == 0 || b[0] != 2 {
+		return l, errCorrupt
 	}
 	d, b, err := readUvarint(b[1:])
 	if err != nil || len(b) < 1 {
-		return l, nil, errCorrupt
+		return l, errCorrupt
 	}
 	l.depth = int(d)
 	l.deleted = b[0] == 1
 	if l.stamp, b, err = readStr(b[1:]); err != nil {
-		return l, nil, err
+		return l, err
 	}
-	if l.device, b, err = readStr(b); err != nil {
-		return l, nil, err
+	l.device, _, err = readStr(b)
+	return l, err
+}
+
+// decodeStored splits a stored revision into its metadata and body.
+func decodeStored(b []byte) (capture.Revision, []byte, error) {
+	var r capture.Revision
+	l, err := revHeader(b)
+	if err != nil {
+		return r, nil, err
 	}
-	return l, b, nil
+	r.Depth, r.Deleted, r.Stamp, r.Device = l.depth, l.deleted, l.stamp, l.device
+	// Skip what revHeader read.
+	_, b, _ = readUvarint(b[1:])
+	b = b[1:]
+	_, b, _ = readStr(b)
+	_, b, _ = readStr(b)
+	if r.ID, b, err = readStr(b); err != nil {
+		return r, nil, err
+	}
+	n, b, err := readUvarint(b)
+	if err != nil || n > uint64(len(b)) {
+		return r, nil, errCorrupt
+	}
+	if n > 0 {
+		r.Parents = make([]string, n)
+	}
+	for i := range r.Parents {
+		if r.Parents[i], b, err = readStr(b); err != nil {
+			return r, nil, err
+		}
+	}
+	return r, b, nil
 }
 
 func decodeRevision(b []byte) (*capture.Capture, error) {
-	_, js, err := revHeader(b)
+	r, body, err := decodeStored(b)
 	if err != nil {
 		return nil, err
 	}
 	c := new(capture.Capture)
-	if err := json.Unmarshal(js, c); err != nil {
+	if err := json.Unmarshal(body, c); err != nil {
 		return nil, fmt.Errorf("%w: %v", errCorrupt, err)
 	}
+	c.Revision = r
 	return c, nil
+}
+
+// wireJSON is a stored revision as sent: the canonical body with a
+// "revision" member added.
+func wireJSON(b []byte) ([]byte, error) {
+	r, body, err := decodeStored(b)
+	if err != nil {
+		return nil, err
+	}
+	rj, err := json.Marshal(r)
+	if err != nil {
+		return nil, err
+	}
+	if len(body) < 2 || body[0] != '{' || body[len(body)-1] != '}' {
+		return nil, errCorrupt
+	}
+	out := make([]byte, 0, len(body)+len(rj)+13)
+	out = append(out, body[:len(body)-1]...)
+	if len(body) > 2 {
+		out = append(out, ',')
+	}
+	out = append(out, `"revision":`...)
+	out = append(out, rj...)
+	return append(out, '}'), nil
 }
 
 // Keys: a record is its UUID's 16 bytes (UUID v7 keys are time-ordered,
