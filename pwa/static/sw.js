@@ -15,6 +15,7 @@ const SHELL = [
   "/js/outbox.js",
   "/js/tags.js",
   "/js/uuid.js",
+  "/js/revision.js",
   "/js/view.js",
   "/manifest.webmanifest",
   "/icons/icon.svg",

@@ -90,7 +90,8 @@ export async function capturesForStudy(studyID) {
 }
 
 // applySettled removes confirmed outbox entries, keeps the others updated,
-// and records the server's revision IDs on the local copies, in one
+// and records on the local copies the revision the server confirmed
+// (revisions: [id, {id, parents, stamp, device, deleted}]), in one
 // transaction.
 export async function applySettled(confirmIDs, keepEntries, revisions) {
   const db = await open();
@@ -104,7 +105,7 @@ export async function applySettled(confirmIDs, keepEntries, revisions) {
     req.onsuccess = () => {
       const c = req.result;
       if (c) {
-        c.revision = { ...(c.revision || {}), id: rev };
+        c.revision = { ...rev };
         caps.put(c);
       }
     };
@@ -112,10 +113,11 @@ export async function applySettled(confirmIDs, keepEntries, revisions) {
   return done(tx);
 }
 
-// putPulled stores records pulled from the server, except those with a
-// newer local version still waiting in the outbox: the crew's unsent edit
-// wins on the phone until the server has it.
-export async function putPulled(records) {
+// putPulled stores records pulled from the server. pick(held, incoming)
+// chooses which revision of a record the phone keeps. A record with an
+// unsent local edit in the outbox is left alone: the crew's edit shows on
+// the phone until the server has it.
+export async function putPulled(records, pick) {
   const db = await open();
   const tx = db.transaction(["captures", "outbox"], "readwrite");
   const out = tx.objectStore("outbox");
@@ -123,8 +125,20 @@ export async function putPulled(records) {
   for (const r of records) {
     const req = out.get(r.id);
     req.onsuccess = () => {
-      if (!req.result) caps.put(r);
+      if (req.result) return;
+      const held = caps.get(r.id);
+      held.onsuccess = () => {
+        const chosen = pick(held.result, r);
+        if (chosen !== held.result) caps.put(chosen);
+      };
     };
   }
   return done(tx);
+}
+
+// allCaptures lists every record on the phone (for a full resend after
+// the server's feed changed epoch).
+export async function allCaptures() {
+  const db = await open();
+  return result(db.transaction("captures").objectStore("captures").getAll());
 }

@@ -417,7 +417,7 @@ async function saveRecord() {
   }
   const existing = await db.getOutboxEntry(body.id);
   const parent = body.revision && body.revision.id ? body.revision.id : null;
-  const entry = enqueue(existing, body, parent, Date.now());
+  const entry = enqueue(existing, body, parent, Date.now(), await server.stamp(state.device));
   await db.saveRecord(body, entry);
   clearDraft();
   toast(state.editing ? "Change saved on this phone" : `Saved ${body.tag_id} on this phone`);
@@ -431,7 +431,7 @@ async function deleteRecord() {
   if (!confirm(`Delete the record of ${state.editing.tag_id}? The coordinator can still see it in the record's history.`)) return;
   const body = { ...state.editing, revision: { ...(state.editing.revision || {}), deleted: true } };
   const existing = await db.getOutboxEntry(body.id);
-  const entry = enqueue(existing, body, body.revision.id || null, Date.now());
+  const entry = enqueue(existing, body, body.revision.id || null, Date.now(), await server.stamp(state.device));
   await db.saveRecord(body, entry);
   toast("Record deleted");
   await reloadCaptures();
@@ -634,7 +634,7 @@ async function syncNow(byHand) {
     }
     $("server-state").textContent = "answering";
     const pushed = await server.pushOutbox(state.device);
-    const pulled = await server.pullStudy(state.study.id);
+    const pulled = await server.pullStudy(state.study.id, state.device);
     await db.setMeta("last-sync", new Date().toISOString());
     msg.textContent = `Sent ${pushed.stored}, received ${pulled}` + (pushed.rejected ? `; ${pushed.rejected} refused, see below` : "");
     await reloadCaptures();
