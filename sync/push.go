@@ -56,33 +56,77 @@ func DecodePush(r io.Reader) (*PushBatch, error) {
 	if len(body) > MaxPushBytes {
 		return nil, fmt.Errorf("sync: push: %w: more than %d bytes; send smaller batches", ErrTooLarge, MaxPushBytes)
 	}
-	var req PushRequest
+	// One pass over the body: each revision is decoded straight into a
+	// Capture. A revision of the wrong shape (a number, a string where a
+	// time belongs) is an error for that revision alone; broken JSON syntax
+	// is an error for the body.
+	b := &PushBatch{}
 	dec := json.NewDecoder(bytes.NewReader(body))
-	if err := dec.Decode(&req); err != nil {
-		return nil, fmt.Errorf("sync: push: %w: body is not a push request: %v", ErrBadRevision, err)
+	fail := func(format string, args ...any) (*PushBatch, error) {
+		return nil, fmt.Errorf("sync: push: %w: body is not a push request: %s", ErrBadRevision, fmt.Sprintf(format, args...))
+	}
+	if tok, err := dec.Token(); err != nil || tok != json.Delim('{') {
+		return fail("expected a JSON object")
+	}
+	for dec.More() {
+		tok, err := dec.Token()
+		if err != nil {
+			return fail("%v", err)
+		}
+		switch tok {
+		case "source":
+			if err := dec.Decode(&b.Source); err != nil {
+				return fail("source: %v", err)
+			}
+		case "revisions":
+			tok, err := dec.Token()
+			if err != nil || (tok != json.Delim('[') && tok != nil) {
+				return fail("revisions must be an array")
+			}
+			if tok == nil {
+				continue
+			}
+			for dec.More() {
+				if len(b.Revisions) == MaxPushRevisions {
+					return nil, fmt.Errorf("sync: push: %w: more than %d revisions; at most %d per push", ErrTooLarge, MaxPushRevisions, MaxPushRevisions)
+				}
+				c := new(capture.Capture)
+				err := dec.Decode(c)
+				var syn *json.SyntaxError
+				switch {
+				case errors.As(err, &syn), errors.Is(err, io.ErrUnexpectedEOF), errors.Is(err, io.EOF):
+					return fail("%v", err)
+				case err != nil:
+					b.Revisions = append(b.Revisions, nil)
+					b.Errors = append(b.Errors, fmt.Errorf("%w: revision %d does not decode: %v", ErrBadRevision, len(b.Revisions), err))
+				default:
+					b.Revisions = append(b.Revisions, c)
+					b.Errors = append(b.Errors, nil)
+				}
+			}
+			if _, err := dec.Token(); err != nil {
+				return fail("%v", err)
+			}
+		default:
+			var skip json.RawMessage
+			if err := dec.Decode(&skip); err != nil {
+				return fail("%v", err)
+			}
+		}
+	}
+	if _, err := dec.Token(); err != nil {
+		return fail("%v", err)
 	}
 	if _, err := dec.Token(); !errors.Is(err, io.EOF) {
-		return nil, fmt.Errorf("sync: push: %w: data after the push request", ErrBadRevision)
+		return fail("data after the push request")
 	}
-	if len(req.Revisions) > MaxPushRevisions {
-		return nil, fmt.Errorf("sync: push: %w: %d revisions, at most %d per push", ErrTooLarge, len(req.Revisions), MaxPushRevisions)
-	}
-	if len(req.Source) > maxDeviceLen {
+	if len(b.Source) > maxDeviceLen {
 		return nil, fmt.Errorf("sync: push: %w: source longer than %d bytes", ErrBadRevision, maxDeviceLen)
 	}
-	for _, c := range req.Source {
+	for _, c := range b.Source {
 		if unicode.IsControl(c) || c == unicode.ReplacementChar {
 			return nil, fmt.Errorf("sync: push: %w: source has a control or invalid character", ErrBadRevision)
 		}
-	}
-	b := &PushBatch{Source: req.Source, Revisions: make([]*capture.Capture, len(req.Revisions)), Errors: make([]error, len(req.Revisions))}
-	for i, raw := range req.Revisions {
-		c := new(capture.Capture)
-		if err := json.Unmarshal(raw, c); err != nil {
-			b.Errors[i] = fmt.Errorf("%w: revision %d does not decode: %v", ErrBadRevision, i+1, err)
-			continue
-		}
-		b.Revisions[i] = c
 	}
 	return b, nil
 }
