@@ -145,6 +145,29 @@ func newEngine(b backend, markPath string, o Options) (*Engine, error) {
 		device = e.replica
 	}
 	e.clock = NewClock(device, o.Now, o.MaxAhead)
+	// Start the clock at the newest stored stamp, so stamps keep increasing
+	// across a restart even if the clock had followed a peer's ahead.
+	if last > 0 {
+		err = b.view(func(t txn) error {
+			return t.feedAfter(last-1, func(_ uint64, fe feedEntry) (bool, error) {
+				val, ok, err := t.revision(fe.captureID, fe.revID)
+				if err != nil || !ok {
+					return false, err
+				}
+				h, err := revHeader(val)
+				if err != nil {
+					return false, err
+				}
+				if st, err := ParseStamp(h.stamp); err == nil {
+					e.clock.Observe(st)
+				}
+				return false, nil
+			})
+		})
+		if err != nil {
+			return nil, fmt.Errorf("sync: open: %w", err)
+		}
+	}
 	return e, nil
 }
 
