@@ -19,7 +19,8 @@ func ChecksSheet(checks []capture.Check) Sheet {
 			strings.Join(c.Tags, ", "), occ, strings.Join(c.Devices, ", "), strings.Join(c.CaptureIDs, ", ")}
 	}
 	return Sheet{
-		Name: "Data checks",
+		Name:   "Data checks",
+		Stream: true, // one row per finding: can be long on messy data
 		Columns: []Column{
 			{Header: "check", Width: 18}, {Header: "severity"}, {Header: "title", Width: 36}, {Header: "explanation", Width: 60},
 			{Header: "advice", Width: 50}, {Header: "affects estimates"}, {Header: "effect", Width: 40},

@@ -43,7 +43,8 @@ func WriteXLSX(w io.Writer, sheets []Sheet, tmpDir string) (err error) {
 			return fmt.Errorf("export: sheet %q: %w", sh.Name, err)
 		}
 	}
-	f.SetActiveSheet(0)
+	// The first sheet is the active one by default. (SetActiveSheet would
+	// read every worksheet back into memory, streamed ones included.)
 	if _, err := f.WriteTo(w); err != nil {
 		return fmt.Errorf("export: writing workbook: %w", err)
 	}
