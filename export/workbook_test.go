@@ -103,8 +103,6 @@ func BenchmarkExport100k(b *testing.B) {
 	defer debug.SetMemoryLimit(debug.SetMemoryLimit(MemoryLimit))
 	b.ResetTimer()
 	var peak uint64
-	var cur uint64
-	peakSoFar := func() uint64 { return cur }
 	for i := 0; i < b.N; i++ {
 		stop := make(chan struct{})
 		done := make(chan uint64)
@@ -114,7 +112,6 @@ func BenchmarkExport100k(b *testing.B) {
 			for {
 				runtime.ReadMemStats(&ms)
 				p = max(p, ms.HeapAlloc)
-				cur = p
 				select {
 				case <-stop:
 					done <- p
@@ -128,7 +125,6 @@ func BenchmarkExport100k(b *testing.B) {
 			b.Fatal(err)
 		}
 		if i == 0 {
-			b.Logf("peak during load+report: %.0f MiB", float64(peakSoFar())/(1<<20))
 			runtime.GC()
 			var ms runtime.MemStats
 			runtime.ReadMemStats(&ms)
