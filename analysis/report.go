@@ -44,6 +44,13 @@ type Report struct {
 	Robust *open.RobustResult `json:"robust,omitempty"`
 	// Density uses the model-averaged closed N and the half-MMDM strip.
 	Density *spatial.DensityResult `json:"density,omitempty"`
+	// Dispersion is how the animals spread over the stations: distinct
+	// animals first caught at each station, every station counted.
+	Dispersion *spatial.DispersionResult `json:"dispersion,omitempty"`
+	// NearestNeighbour is the Clark-Evans ratio of the GPS positions of
+	// each animal's first capture, with Donnelly's edge correction, over
+	// the stations' hull plus the density strip.
+	NearestNeighbour *spatial.NearestNeighbour `json:"nearest_neighbour,omitempty"`
 
 	SexRatio    *demography.SexRatioResult     `json:"sex_ratio,omitempty"`
 	Ages        *demography.AgeStructureResult `json:"age_structure,omitempty"`
@@ -113,7 +120,98 @@ func FromCaptures(st *capture.Study, caps []capture.Capture) (*Report, error) {
 		r.closedModels(h)
 		r.density(st, caps, hs)
 	}
+	r.spread(st, caps, hs)
 	return r, nil
+}
+
+// spread fills Dispersion and NearestNeighbour. Each animal counts once,
+// at its first capture in hand, so the counts are of animals, not of
+// repeated captures of the same ones.
+func (r *Report) spread(st *capture.Study, caps []capture.Capture, hs *capture.HistorySet) {
+	if len(st.Stations) < 2 || len(hs.Animals) == 0 {
+		return
+	}
+	first := firstCaptures(caps, hs)
+	index := map[string]int{}
+	for i, s := range st.Stations {
+		index[s.ID] = i
+	}
+	counts := make([]int, len(st.Stations))
+	for _, c := range first {
+		if i, ok := index[c.StationID]; ok {
+			counts[i]++
+		}
+	}
+	if d, err := spatial.Dispersion(counts); err != nil {
+		r.Errors["dispersion"] = err.Error()
+	} else {
+		r.Dispersion = d
+	}
+	r.clarkEvans(st, first)
+}
+
+// firstCaptures returns each animal's first capture in hand.
+func firstCaptures(caps []capture.Capture, hs *capture.HistorySet) []capture.Capture {
+	animalOf := map[string]int{}
+	for i := range hs.Animals {
+		for _, t := range hs.Animals[i].Tags {
+			animalOf[t] = i
+		}
+	}
+	first := map[int]capture.Capture{}
+	for _, c := range caps {
+		a, ok := animalOf[c.TagID]
+		if !ok || c.Revision.Deleted || c.Event == capture.EventDeadRecovery || c.Event == capture.EventResight {
+			continue
+		}
+		if f, seen := first[a]; !seen || c.CapturedAt.Before(f.CapturedAt) {
+			first[a] = c
+		}
+	}
+	out := make([]capture.Capture, 0, len(first))
+	for i := range hs.Animals {
+		if c, ok := first[i]; ok {
+			out = append(out, c)
+		}
+	}
+	return out
+}
+
+// clarkEvans needs GPS positions and stations with lat/lon, so both share
+// one local projection; at least 7 positions (Donnelly's correction was
+// worked out for patterns of about that size or more).
+func (r *Report) clarkEvans(st *capture.Study, first []capture.Capture) {
+	ll := make([]spatial.LatLon, 0, len(st.Stations))
+	for _, s := range st.Stations {
+		if s.Lat == nil || s.Lon == nil {
+			return
+		}
+		ll = append(ll, spatial.LatLon{Lat: *s.Lat, Lon: *s.Lon})
+	}
+	stations, proj, err := spatial.ProjectStations(ll)
+	if err != nil {
+		return
+	}
+	var pts []spatial.Point
+	for _, c := range first {
+		if c.Lat != nil && c.Lon != nil {
+			pts = append(pts, proj.Project(spatial.LatLon{Lat: *c.Lat, Lon: *c.Lon}))
+		}
+	}
+	if len(pts) < 7 {
+		return
+	}
+	w := 0.0
+	if r.Density != nil {
+		w = r.Density.StripWidth.Estimate
+	}
+	region, err := spatial.BufferedHullRegion(stations, w)
+	if err == nil {
+		r.NearestNeighbour, err = spatial.ClarkEvans(pts, region, true)
+	}
+	if err != nil {
+		r.Errors["nearest_neighbour"] = err.Error()
+	}
 }
 
 func (r *Report) closedModels(h *estimators.Histories) {

@@ -317,3 +317,31 @@ func DemographySheet(r *analysis.Report) (Sheet, bool) {
 func sortedKeys[V any](m map[string]V) []string {
 	return slices.Sorted(maps.Keys(m))
 }
+
+// DispersionSheet reports how animals spread over the stations (index of
+// dispersion, Morisita's indices) and, where capture positions are known,
+// the Clark-Evans nearest-neighbour ratio.
+func DispersionSheet(r *analysis.Report) (Sheet, bool) {
+	if r.Dispersion == nil && r.NearestNeighbour == nil {
+		return Sheet{}, false
+	}
+	cols := []Column{
+		{Header: "index", Width: 34}, {Header: "value", Kind: Number}, {Header: "test", Width: 14},
+		{Header: "statistic", Kind: Number}, {Header: "df", Kind: Integer}, {Header: "p", Kind: Number},
+		{Header: "reading", Width: 12}, {Header: "note", Width: 50},
+	}
+	var rows [][]any
+	if d := r.Dispersion; d != nil {
+		vm, mo := d.VarianceMean, d.Morisita
+		rows = append(rows,
+			[]any{"variance-to-mean ratio", vm.Ratio, vm.Test.Name, vm.Test.Statistic, vm.Test.DF, vm.Test.P, string(vm.Test.Pattern), fmt.Sprintf("%d animals over %d stations", vm.Total, vm.Stations)},
+			[]any{"Morisita's index I_d", mo.Index, mo.Test.Name, mo.Test.Statistic, mo.Test.DF, mo.Test.P, string(mo.Test.Pattern), ""},
+			[]any{"standardized Morisita index I_p", mo.Standardized, nil, nil, nil, nil, string(mo.StandardizedPattern), "Smith-Gill (1975): beyond ±0.5 departs from random at the 5% level"},
+		)
+	}
+	if nn := r.NearestNeighbour; nn != nil {
+		rows = append(rows, []any{"Clark-Evans ratio R", nn.R, nn.Test.Name, nn.Test.Statistic, nil, nn.Test.P, string(nn.Test.Pattern),
+			fmt.Sprintf("%d first-capture positions; mean nearest neighbour %.1f m against %.1f m expected", nn.Points, nn.Observed, nn.Expected)})
+	}
+	return Sheet{Name: "Dispersion", Columns: cols, Rows: RowsOf(rows)}, true
+}

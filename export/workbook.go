@@ -68,7 +68,7 @@ func (e *StudyExport) Sheets() []Sheet {
 		IndividualsSheet(e.Report.Histories),
 		OccasionsSheet(e.Report.Summary, e.Report.MArray),
 	}
-	for _, opt := range []func(*analysis.Report) (Sheet, bool){ClosedSheet, OpenSheet, SurvivalModelsSheet, DemographySheet, DensitySheet} {
+	for _, opt := range []func(*analysis.Report) (Sheet, bool){ClosedSheet, OpenSheet, SurvivalModelsSheet, DemographySheet, DensitySheet, DispersionSheet} {
 		if sh, ok := opt(e.Report); ok {
 			sheets = append(sheets, sh)
 		}
@@ -88,7 +88,7 @@ func (e *StudyExport) WriteXLSX(w io.Writer, tmpDir string) error {
 var tableKeys = map[string]string{
 	"Summary": "summary", "Captures": "captures", "Individuals": "individuals", "Occasions": "occasions",
 	"Closed estimates": "closed", "Open estimates": "open", "Survival models": "survival",
-	"Demography": "demography", "Density": "density", "Data checks": "checks",
+	"Demography": "demography", "Density": "density", "Dispersion": "dispersion", "Data checks": "checks",
 }
 
 // TableNames lists the short names of the tables this study's workbook

@@ -34,7 +34,7 @@ func TestStudyWorkbook(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer f.Close()
-	want := []string{"Summary", "Captures", "Individuals", "Occasions", "Closed estimates", "Demography", "Density", "Data checks"}
+	want := []string{"Summary", "Captures", "Individuals", "Occasions", "Closed estimates", "Demography", "Density", "Dispersion", "Data checks"}
 	got := f.GetSheetList()
 	if fmt.Sprint(got) != fmt.Sprint(want) {
 		t.Fatalf("sheets %v, want %v", got, want)
@@ -48,6 +48,7 @@ func TestStudyWorkbook(t *testing.T) {
 		"Demography":       "measure",
 		"Density":          "quantity",
 		"Data checks":      "check",
+		"Dispersion":       "index",
 	}
 	for sheet, h := range headers {
 		if v, _ := f.GetCellValue(sheet, "A1"); v != h {

@@ -132,7 +132,7 @@ func exportThroughServer(port int, study, out, csvDir string, stdout io.Writer) 
 	if err := os.MkdirAll(csvDir, 0o755); err != nil {
 		return err
 	}
-	for _, name := range []string{"histories", "summary", "captures", "individuals", "occasions", "closed", "open", "survival", "demography", "density", "checks"} {
+	for _, name := range []string{"histories", "summary", "captures", "individuals", "occasions", "closed", "open", "survival", "demography", "density", "dispersion", "checks"} {
 		err := get(prefix+"/export/"+name+".csv", filepath.Join(csvDir, name+".csv"))
 		if err != nil && !strings.Contains(err.Error(), "404") {
 			return err
