@@ -581,6 +581,29 @@ function closedSection(rep) {
   return nodes;
 }
 
+// How animals spread over the stations: the numbers come from the
+// server's report (estimators/spatial); this only lays them out.
+function spreadSection(d, nn) {
+  const p = (x) => (x < 0.001 ? "< 0.001" : num(x, 3));
+  const rows = [];
+  if (d) {
+    const vm = d.variance_mean;
+    const mo = d.morisita;
+    rows.push(["Variance-to-mean ratio", num(vm.ratio, 2), `chi-square ${num(vm.test.statistic, 1)} on ${vm.test.df} df, p ${p(vm.test.p)}`, vm.test.pattern]);
+    rows.push(["Morisita's index", num(mo.index, 2), `p ${p(mo.test.p)}`, mo.test.pattern]);
+    rows.push(["Standardized Morisita index", num(mo.standardized, 2), "beyond ±0.5 departs from random", mo.standardized_pattern]);
+  }
+  if (nn) rows.push(["Clark-Evans ratio R", num(nn.R, 2), `z ${num(nn.test.statistic, 2)}, p ${p(nn.test.p)}; ${nn.points} positions`, nn.test.pattern]);
+  const nodes = [h("h2", {}, "How animals spread over the stations"),
+    h("p", { class: "small muted" }, d ? `Each animal counted once, at the station of its first capture: ${d.variance_mean.total} animals over ${d.variance_mean.stations} stations.` : ""),
+    h("table", { id: "spread-table", class: "dense" },
+      h("thead", {}, h("tr", {}, ["Index", "Value", "Test", "Reading"].map((x) => h("th", {}, x)))),
+      h("tbody", {}, rows.map((r) => h("tr", {}, r.map((x) => h("td", {}, x))))))];
+  if (d) nodes.push(assumptions(d.assumptions, "These indices assume"));
+  if (nn) nodes.push(assumptions(nn.assumptions, "The nearest-neighbour test assumes"));
+  return nodes;
+}
+
 function jsSection(js) {
   const occ = js.occasions;
   const cell = (v, d) => valueCells(v, d);
@@ -666,6 +689,7 @@ async function viewEstimates() {
   if (rep.jolly_seber) nodes.push(...jsSection(rep.jolly_seber));
   if (rep.cjs) nodes.push(...cjsSection(rep.cjs, rep.gof));
   if (rep.robust) nodes.push(...robustSection(rep.robust));
+  if (rep.dispersion || rep.nearest_neighbour) nodes.push(...spreadSection(rep.dispersion, rep.nearest_neighbour));
   const data = h("div", { class: "row" });
   if (rep.summary && rep.summary.length) data.append(h("div", { class: "panel" }, perOccasionChart(rep.summary), chartLegend()));
   if (rep.capture_frequencies) data.append(h("div", { class: "panel" }, frequencyChart(rep.capture_frequencies)));
