@@ -112,7 +112,7 @@ async function loadStudies() {
   });
 }
 
-const views = { summary: viewSummary, checks: viewChecks, conflicts: viewConflicts, devices: viewDevices, estimates: viewEstimates };
+const views = { summary: viewSummary, checks: viewChecks, conflicts: viewConflicts, devices: viewDevices, estimates: viewEstimates, transfer: viewTransfer };
 
 async function route() {
   const v = location.hash.replace("#", "") || "summary";
@@ -602,6 +602,65 @@ function spreadSection(d, nn) {
   if (d) nodes.push(assumptions(d.assumptions, "These indices assume"));
   if (nn) nodes.push(assumptions(nn.assumptions, "The nearest-neighbour test assumes"));
   return nodes;
+}
+
+// ---- export and import ----
+
+const tables = [
+  ["histories", "Capture histories (id, history, covariates) for other analysis tools"],
+  ["captures", "Every capture record"],
+  ["individuals", "One row per animal"],
+  ["occasions", "Per-occasion counts and the m-array"],
+  ["summary", "Summary"],
+  ["checks", "Open data-check findings"],
+];
+
+async function viewTransfer() {
+  const base = `${API}${sp(state.study)}`;
+  const report = h("div", { id: "import-report" });
+  const file = h("input", { type: "file", id: "import-file", accept: ".csv,.xlsx,.json,text/csv" });
+  const mapping = h("input", { type: "file", id: "import-mapping", accept: ".csv,text/csv" });
+  const send = async (dry) => {
+    if (!file.files.length) {
+      report.replaceChildren(h("p", { class: "msg" }, "Choose a file first."));
+      return;
+    }
+    const form = new FormData();
+    form.append("file", file.files[0]);
+    if (mapping.files.length) form.append("mapping", mapping.files[0]);
+    report.replaceChildren(h("p", { class: "muted" }, dry ? "Checking…" : "Importing…"));
+    const res = await fetch(`${base}/import?dry_run=${dry}`, { method: "POST", body: form, headers: { Accept: "application/json" } });
+    let body = null;
+    try {
+      body = await res.json();
+    } catch {
+      body = null;
+    }
+    const rep = body && body.report;
+    if (!rep) {
+      report.replaceChildren(h("p", { class: "msg" }, (body && body.error) || `The server answered ${res.status}.`));
+      return;
+    }
+    const lines = (rep.problems || []).map((p) => h("tr", {}, h("td", { class: "n" }, p.row ? String(p.row) : "file"), h("td", {}, p.column || ""), h("td", {}, p.value || ""), h("td", {}, p.reason)));
+    report.replaceChildren(
+      h("p", { class: rep.problems && rep.problems.length ? "msg" : "" },
+        rep.problems && rep.problems.length ? `${rep.problems.length} problems: nothing was imported. Correct the rows below and try again.`
+          : dry ? `${rep.valid} of ${rep.rows} rows are ready to import. Nothing was written yet.` : `Imported ${rep.written} records.`),
+      lines.length ? h("table", { class: "dense", id: "import-problems" }, h("thead", {}, h("tr", {}, ["Row", "Column", "Value", "What is wrong"].map((x) => h("th", {}, x)))), h("tbody", {}, lines)) : null,
+      (rep.notes || []).length ? assumptions(rep.notes.map((n) => (n.row ? `Row ${n.row}: ` : "") + n.reason), "Notes") : null);
+  };
+  show(
+    h("h1", {}, "Export and import"),
+    h("h2", {}, "For the program office"),
+    h("p", {}, h("a", { class: "button primary", href: `${base}/export.xlsx`, id: "export-xlsx" }, "Download the workbook (XLSX)")),
+    h("p", { class: "small muted" }, "One workbook: summary with the headline estimates, cautions and assumptions; every record; animals; occasions and m-array; model tables; demography, density and dispersion; open data checks. Estimates from data with open checks should be read as provisional."),
+    h("h3", {}, "Single tables as CSV"),
+    h("ul", {}, tables.map(([t, what]) => h("li", {}, h("a", { href: `${base}/export/${t}.csv` }, `${t}.csv`), ` · ${what}`))),
+    h("h2", {}, "Import older data or a phone's backup file"),
+    h("p", { class: "small muted" }, "CSV, XLSX (the sheet named Captures, or the first) or a phone outbox backup. Headers are matched whatever their case; for others add a mapping file of lines \"file column,field\". Every row is checked first; if any row has a problem nothing is written. Importing the same file twice adds nothing."),
+    h("div", { class: "fields" }, h("label", {}, "File ", file), h("label", {}, "Mapping file (optional) ", mapping)),
+    h("p", {}, h("button", { type: "button", onclick: () => send(true) }, "Check the file"), " ", h("button", { type: "button", class: "primary", onclick: () => send(false) }, "Import")),
+    report);
 }
 
 function jsSection(js) {
