@@ -644,7 +644,7 @@ async function viewTransfer() {
     const lines = (rep.problems || []).map((p) => h("tr", {}, h("td", { class: "n" }, p.row ? String(p.row) : "file"), h("td", {}, p.column || ""), h("td", {}, p.value || ""), h("td", {}, p.reason)));
     report.replaceChildren(
       h("p", { class: rep.problems && rep.problems.length ? "msg" : "" },
-        rep.problems && rep.problems.length ? `${rep.problems.length} problems: nothing was imported. Correct the rows below and try again.`
+        rep.problems && rep.problems.length ? `${rep.problems.length} problem${rep.problems.length === 1 ? "" : "s"}: nothing was imported. Correct the rows below and try again.`
           : dry ? `${rep.valid} of ${rep.rows} rows are ready to import. Nothing was written yet.` : `Imported ${rep.written} records.`),
       lines.length ? h("table", { class: "dense", id: "import-problems" }, h("thead", {}, h("tr", {}, ["Row", "Column", "Value", "What is wrong"].map((x) => h("th", {}, x)))), h("tbody", {}, lines)) : null,
       (rep.notes || []).length ? assumptions(rep.notes.map((n) => (n.row ? `Row ${n.row}: ` : "") + n.reason), "Notes") : null);
