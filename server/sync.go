@@ -26,8 +26,19 @@ type syncState struct {
 func (s *Server) engine() (*tsync.Engine, error) {
 	s.sync.once.Do(func() {
 		s.sync.eng, s.sync.err = tsync.Open(s.store, &tsync.Options{Batch: true})
-		if s.sync.err == nil {
-			s.log.Info("sync", "replica", s.sync.eng.Replica(), "epoch", s.sync.eng.Epoch(), "note", s.sync.eng.EpochNote)
+		if s.sync.err != nil {
+			return
+		}
+		s.log.Info("sync", "replica", s.sync.eng.Replica(), "epoch", s.sync.eng.Epoch(), "note", s.sync.eng.EpochNote)
+		// Records written before sync started (demo data, imports) get
+		// their first revisions, so phones and peers see them.
+		n, err := s.sync.eng.Adopt()
+		if err != nil {
+			s.sync.err = err
+			return
+		}
+		if n > 0 {
+			s.log.Info("sync: versioned records written without sync", "revisions", n)
 		}
 	})
 	return s.sync.eng, s.sync.err

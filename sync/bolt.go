@@ -64,6 +64,15 @@ func (b boltBackend) view(fn func(txn) error) error {
 	})
 }
 
+func (b boltBackend) studyIDs() ([]string, error) {
+	sts, err := b.s.ListStudies()
+	ids := make([]string, len(sts))
+	for i, st := range sts {
+		ids[i] = st.ID
+	}
+	return ids, err
+}
+
 type boltTxn struct {
 	tx                   *capture.Tx
 	revs, recs, feed, mt *bolt.Bucket // nil in a read-only tx before the first write
@@ -178,6 +187,10 @@ func (t *boltTxn) current(studyID, captureID string) (*capture.Capture, error) {
 }
 
 func (t *boltTxn) putCurrent(c *capture.Capture) error { return t.tx.PutCaptureRaw(c) }
+
+func (t *boltTxn) forEachCapture(studyID string, fn func(c *capture.Capture) error) error {
+	return t.tx.ForEachCapture(studyID, fn)
+}
 
 func (t *boltTxn) appendFeed(e feedEntry) (uint64, error) {
 	seq, err := t.feed.NextSequence()

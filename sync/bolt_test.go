@@ -303,3 +303,53 @@ func TestPushDecodeAndApply(t *testing.T) {
 		t.Errorf("source record %+v", rec)
 	}
 }
+
+// Records written straight to the capture store (demo data, imports,
+// direct edits) are versioned by Adopt, once.
+func TestAdoptUnversionedRecords(t *testing.T) {
+	e, s := openBolt(t, nil)
+	mk := func(n int) capture.Capture {
+		c := *body(fmt.Sprintf("01890a5d-ac96-774b-bcce-%012x", n), n)
+		c.StationID = "A1"
+		return c
+	}
+	versioned, _, err := e.Create(ptr(mk(1)))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := s.PutCaptures([]capture.Capture{mk(2), mk(3)}); err != nil {
+		t.Fatal(err)
+	}
+	n, err := e.Adopt()
+	if err != nil || n != 2 {
+		t.Fatalf("adopt: %d %v; want 2 first revisions", n, err)
+	}
+	// A direct edit and a direct delete of versioned records.
+	edited := mk(1)
+	edited.Notes = "edited without sync"
+	if _, _, err := s.UpdateCapture(&edited); err != nil {
+		t.Fatal(err)
+	}
+	if err := s.DeleteCapture(testStudy, mk(2).ID); err != nil {
+		t.Fatal(err)
+	}
+	if n, err = e.Adopt(); err != nil || n != 2 {
+		t.Fatalf("adopt after direct writes: %d %v; want 2 child revisions", n, err)
+	}
+	if n, err = e.Adopt(); err != nil || n != 0 {
+		t.Fatalf("second adopt: %d %v; want 0", n, err)
+	}
+	h, err := e.History(testStudy, versioned.ID)
+	if err != nil || len(h.Revisions) != 2 || h.Conflict || h.Revisions[1].Notes != "edited without sync" || h.Revisions[1].Revision.Parents[0] != versioned.Revision.ID {
+		t.Fatalf("history after adoption: %+v %v", h, err)
+	}
+	h, _ = e.History(testStudy, mk(2).ID)
+	if len(h.Revisions) != 2 || !h.Revisions[1].Revision.Deleted {
+		t.Fatalf("direct delete not adopted as a tombstone: %+v", h)
+	}
+	if page, _ := e.Pull(PullRequest{}); len(page.Revisions) != 5 {
+		t.Fatalf("feed holds %d revisions, want 5", len(page.Revisions))
+	}
+}
+
+func ptr[T any](v T) *T { return &v }

@@ -51,6 +51,7 @@ type Engine struct {
 }
 
 type backend interface {
+	studyIDs() ([]string, error)
 	update(fn func(txn) error) error
 	batch(fn func(txn) error) error
 	view(fn func(txn) error) error
@@ -549,6 +550,110 @@ func (e *Engine) revisionBody(t txn, id, rev string) (*capture.Capture, error) {
 		return nil, fmt.Errorf("capture %s revision %s: %w", id, rev, errCorrupt)
 	}
 	return decodeRevision(val)
+}
+
+// ---- records written without sync ----
+
+// Adopt versions records that reached the capture store without going
+// through sync (demo data, imports, files from before sync, direct store
+// edits): a record sync does not know gets a first revision of its
+// current body; a record whose body or deleted flag no longer matches the
+// revision it names gets a child revision of that revision (or of the
+// winner). Until adopted such records are not in the change feed, so
+// SyncPeer calls Adopt first; the server calls it when sync starts. It
+// returns the number of revisions made. Re-running it finds nothing.
+func (e *Engine) Adopt() (int, error) {
+	type adoption struct {
+		c      *capture.Capture
+		parent string
+	}
+	var todo []adoption
+	studies, err := e.b.studyIDs()
+	if err != nil {
+		return 0, fmt.Errorf("sync: adopt: %w", err)
+	}
+	err = e.b.view(func(t txn) error {
+		for _, sid := range studies {
+			if err := t.forEachCapture(sid, func(c *capture.Capture) error {
+				rs, ok, err := t.record(c.ID)
+				if err != nil {
+					return err
+				}
+				if !ok {
+					todo = append(todo, adoption{c: c})
+					return nil
+				}
+				base := c.Revision.ID
+				val, ok, err := t.revision(c.ID, base)
+				if err != nil {
+					return err
+				}
+				if !ok {
+					base = rs.leaves[winner(rs.leaves)].id
+					if val, _, err = t.revision(c.ID, base); err != nil {
+						return err
+					}
+				}
+				r, stored, err := decodeStored(val)
+				if err != nil {
+					return fmt.Errorf("capture %s: %w", c.ID, err)
+				}
+				body, err := CanonicalBody(c)
+				if err != nil {
+					return fmt.Errorf("capture %s: %w", c.ID, err)
+				}
+				if r.ID != c.Revision.ID || r.Deleted != c.Revision.Deleted || string(body) != string(stored) {
+					todo = append(todo, adoption{c: c, parent: base})
+				}
+				return nil
+			}); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		return 0, fmt.Errorf("sync: adopt: %w", err)
+	}
+	made := 0
+	for len(todo) > 0 {
+		n := min(len(todo), 500)
+		chunk := todo[:n]
+		todo = todo[n:]
+		var last uint64
+		err := e.b.update(func(t txn) error {
+			for _, a := range chunk {
+				rec := cloneCapture(a.c)
+				var parents []string
+				if a.parent != "" {
+					parents = []string{a.parent}
+				}
+				rec.Revision = capture.Revision{Parents: parents, Deleted: a.c.Revision.Deleted, Stamp: e.clock.Now().String(), Device: e.clock.device}
+				body, err := checkRevision(rec)
+				if err != nil {
+					return fmt.Errorf("capture %s: %w", rec.ID, err)
+				}
+				res, err := merge(t, rec, body, "")
+				if err != nil {
+					return err
+				}
+				if res.Status == StatusRejected {
+					return fmt.Errorf("capture %s: %s", rec.ID, res.Reason)
+				}
+				if res.Status == StatusStored {
+					made++
+				}
+			}
+			var err error
+			last, err = t.lastSeq()
+			return err
+		})
+		if err != nil {
+			return made, fmt.Errorf("sync: adopt: %w", err)
+		}
+		e.noteSeq(last)
+	}
+	return made, nil
 }
 
 // ---- history ----

@@ -92,6 +92,31 @@ func (m *memBackend) putCurrent(c *capture.Capture) error {
 	return nil
 }
 
+func (m *memBackend) studyIDs() ([]string, error) {
+	var ids []string
+	for id := range m.studies {
+		ids = append(ids, id)
+	}
+	sort.Strings(ids)
+	return ids, nil
+}
+
+func (m *memBackend) forEachCapture(studyID string, fn func(*capture.Capture) error) error {
+	ids := make([]string, 0, len(m.cur))
+	for id, c := range m.cur {
+		if c.StudyID == studyID {
+			ids = append(ids, id)
+		}
+	}
+	sort.Strings(ids)
+	for _, id := range ids {
+		if err := fn(cloneCapture(m.cur[id])); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
 func (m *memBackend) appendFeed(e feedEntry) (uint64, error) {
 	m.feed = append(m.feed, e)
 	return uint64(len(m.feed)), nil

@@ -31,6 +31,8 @@ type txn interface {
 	// current is the record as the capture store holds it (the winner).
 	current(studyID, captureID string) (*capture.Capture, error)
 	putCurrent(c *capture.Capture) error
+	// forEachCapture visits every record of a study in the capture store.
+	forEachCapture(studyID string, fn func(c *capture.Capture) error) error
 	appendFeed(e feedEntry) (uint64, error)
 	// feedAfter calls fn for entries with seq > after in order until fn
 	// returns false.

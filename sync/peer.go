@@ -124,6 +124,9 @@ func (e *Engine) SyncPeer(ctx context.Context, p Peer) (*PeerReport, error) {
 	}
 	rep := &PeerReport{}
 	name := p.name()
+	if _, err := e.Adopt(); err != nil {
+		return rep, err
+	}
 	reject := func(r Result) {
 		rep.Rejected++
 		if len(rep.RejectedReason) < 10 {
