@@ -1,5 +1,5 @@
 // Unit tests for the phone app's pure logic, run with Node's test runner:
-//   node --experimental-default-type=module --test pwa/jstest/
+//   node --test pwa/jstest/
 // Expected values are worked by hand from the rules in the module
 // comments (common practice for an outbox: clear only on confirmation).
 import { test } from "node:test";
