@@ -137,28 +137,13 @@ func isTagtally(base string) error {
 // writeAtomically copies r into a temporary file beside dest, syncs it and
 // renames it to dest. want is the expected size, or -1 if unknown.
 func writeAtomically(dest string, r io.Reader, want int64) error {
-	tmp, err := os.CreateTemp(filepath.Dir(dest), "."+filepath.Base(dest)+".tmp-*")
-	if err != nil {
+	return writeFileAtomically(dest, 0o600, func(w io.Writer) error {
+		n, err := io.Copy(w, r)
+		if err == nil && want >= 0 && n != want {
+			err = fmt.Errorf("the copy stopped after %d of %d bytes", n, want)
+		}
 		return err
-	}
-	defer os.Remove(tmp.Name()) // fails harmlessly after the rename
-	n, err := io.Copy(tmp, r)
-	if err == nil && want >= 0 && n != want {
-		err = fmt.Errorf("the copy stopped after %d of %d bytes", n, want)
-	}
-	if err == nil {
-		err = tmp.Sync()
-	}
-	if cerr := tmp.Close(); err == nil {
-		err = cerr
-	}
-	if err != nil {
-		return fmt.Errorf("writing the backup: %w", err)
-	}
-	if err := os.Chmod(tmp.Name(), 0o600); err != nil {
-		return err
-	}
-	return os.Rename(tmp.Name(), dest)
+	})
 }
 
 // checkBackup opens the copy read-only, runs the consistency check and

@@ -71,7 +71,7 @@ func runExport(args []string, stdout io.Writer) error {
 		return err
 	}
 	if *out != "" {
-		err = writeFileAtomically(*out, func(w io.Writer) error { return e.WriteXLSX(w, "") })
+		err = writeFileAtomically(*out, 0o644, func(w io.Writer) error { return e.WriteXLSX(w, "") })
 		if err == nil {
 			fmt.Fprintf(stdout, "Wrote %s: %d sheets, %d animals, %d open data-check findings.\n", *out, len(e.Sheets()), e.Report.Animals, len(e.Checks))
 		}
@@ -83,7 +83,7 @@ func runExport(args []string, stdout io.Writer) error {
 	names := append([]string{"histories"}, e.TableNames()...)
 	for _, name := range names {
 		path := filepath.Join(*csvDir, name+".csv")
-		err := writeFileAtomically(path, func(w io.Writer) error {
+		err := writeFileAtomically(path, 0o644, func(w io.Writer) error {
 			if name == "histories" {
 				return capture.WriteHistoryCSV(w, e.Report.Histories)
 			}
@@ -142,23 +142,27 @@ func exportThroughServer(port int, study, out, csvDir string, stdout io.Writer) 
 	return nil
 }
 
-// writeFileAtomically writes through a temporary file renamed into place.
-func writeFileAtomically(path string, write func(io.Writer) error) error {
+// writeFileAtomically writes through a temporary file beside path, synced
+// and renamed into place with mode perm, so a reader never sees half a
+// file and a failure leaves nothing behind.
+func writeFileAtomically(path string, perm os.FileMode, write func(io.Writer) error) error {
 	tmp, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".tmp-*")
 	if err != nil {
 		return err
 	}
-	defer os.Remove(tmp.Name())
-	if err := write(tmp); err != nil {
-		tmp.Close()
-		return err
+	defer os.Remove(tmp.Name()) // fails harmlessly after the rename
+	err = write(tmp)
+	if err == nil {
+		err = tmp.Sync()
 	}
-	if err := tmp.Sync(); err != nil {
-		tmp.Close()
-		return err
+	if cerr := tmp.Close(); err == nil {
+		err = cerr
 	}
-	if err := tmp.Close(); err != nil {
-		return err
+	if err == nil {
+		err = os.Chmod(tmp.Name(), perm)
+	}
+	if err != nil {
+		return fmt.Errorf("writing %s: %w", path, err)
 	}
 	return os.Rename(tmp.Name(), path)
 }
