@@ -3,6 +3,7 @@ package export
 import (
 	"bytes"
 	"encoding/csv"
+	"encoding/json"
 	"errors"
 	"os"
 	"path/filepath"
@@ -14,6 +15,7 @@ import (
 
 	"github.com/xuri/excelize/v2"
 
+	"tagtally/analysis"
 	"tagtally/capture"
 	"tagtally/capture/storetest"
 	"tagtally/demo"
@@ -79,6 +81,8 @@ func comparable(c capture.Capture) capture.Capture {
 	return c
 }
 
+// roundTrip imports an exported file of the demo study into an empty
+// store and checks that the records and every estimate come back the same.
 func roundTrip(t *testing.T, name string, file []byte) {
 	s, st := demoStore(t)
 	want, err := s.Captures(st.ID, true)
@@ -109,6 +113,8 @@ func roundTrip(t *testing.T, name string, file []byte) {
 			t.Fatalf("%s: record %d differs:\n got %+v\nwant %+v", name, i, g, w)
 		}
 	}
+	sameEstimates(t, name, s, empty, st.ID)
+
 	// Importing the same file again adds nothing.
 	before := len(got)
 	if _, err := Import(st, file, Options{}, false, func(cs []capture.Capture) error {
@@ -123,13 +129,61 @@ func roundTrip(t *testing.T, name string, file []byte) {
 	}
 }
 
-func TestCSVRoundTrip(t *testing.T) {
+// sameEstimates compares the whole analysis report (closed model table,
+// density, dispersion, demography, occasion summary and m-array) of two
+// stores as JSON: identical records must give identical estimates.
+func sameEstimates(t *testing.T, name string, a, b *capture.Store, studyID string) {
+	t.Helper()
+	ra, err := analysis.ForStudy(a, studyID)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rb, err := analysis.ForStudy(b, studyID)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if ra.Closed == nil || len(ra.Closed.Rows) == 0 {
+		t.Fatalf("%s: the demo study has no closed estimates to compare: %v", name, ra.Errors)
+	}
+	ja, _ := json.Marshal(ra)
+	jb, _ := json.Marshal(rb)
+	if !bytes.Equal(ja, jb) {
+		t.Errorf("%s: estimates differ after the round trip:\n before %s\n after  %s", name, ja, jb)
+	}
+}
+
+// exportDemo is the demo study's full export, as the export command
+// writes it.
+func exportDemo(t *testing.T) *StudyExport {
+	t.Helper()
 	s, st := demoStore(t)
+	e, err := LoadStudy(s, st.ID, "test", time.Date(2026, 6, 1, 0, 0, 0, 0, time.UTC))
+	if err != nil {
+		t.Fatal(err)
+	}
+	return e
+}
+
+func TestCSVRoundTrip(t *testing.T) {
+	sh, ok := exportDemo(t).Table("captures")
+	if !ok {
+		t.Fatal("the export has no captures table")
+	}
 	var buf bytes.Buffer
-	if err := WriteCSV(&buf, CapturesSheet(eachCapture(s, st.ID))); err != nil {
+	if err := WriteCSV(&buf, sh); err != nil {
 		t.Fatal(err)
 	}
 	roundTrip(t, "CSV", buf.Bytes())
+}
+
+// The whole program-office workbook (every sheet) imports back: the
+// importer finds the Captures sheet among the others.
+func TestWorkbookRoundTrip(t *testing.T) {
+	var buf bytes.Buffer
+	if err := exportDemo(t).WriteXLSX(&buf, t.TempDir()); err != nil {
+		t.Fatal(err)
+	}
+	roundTrip(t, "workbook", buf.Bytes())
 }
 
 func TestXLSXRoundTripAndSheetContents(t *testing.T) {
