@@ -183,7 +183,10 @@ func JollySeber(s Summary) (*JollySeberResult, error) {
 	for i := 1; i < t-1; i++ {
 		M[i] = m(i) + (R(i)+1)*z(i)/(r(i)+1)
 		hasM[i] = true
-		if s.Recaptured[i] == 0 {
+		switch {
+		case s.Released[i] == 0 && s.Caught[i] > 0:
+			note(i, "no animal was released here (all %d caught were lost on capture, R = 0): M and N rest on the small-sample adjustment alone and have no standard error", s.Caught[i])
+		case s.Recaptured[i] == 0:
 			note(i, "no animal released here was caught again (r = 0): M and N rest on the small-sample adjustment alone and have no standard error")
 		}
 		if M[i] > 0 {
