@@ -41,16 +41,21 @@ func (s *Server) listCaptures(c echo.Context) error {
 	return c.JSON(http.StatusOK, capturePage{Captures: page, NextCursor: next})
 }
 
+// createCapture stores a new record as its first revision, through the
+// sync engine, so that the write is in the change feed (and versioned) in
+// the transaction that stores it.
 func (s *Server) createCapture(c echo.Context) error {
+	eng, err := s.engine()
+	if err != nil {
+		return err
+	}
 	rec, err := bindCapture(c, "")
 	if err != nil {
 		return err
 	}
-	// Versions belong to the sync protocol; a plain create starts afresh.
-	rec.Revision = capture.Revision{}
-	stored, fs, err := s.store.CreateCapture(rec)
+	stored, fs, err := eng.Create(rec) // a revision in the body is ignored
 	if err != nil {
-		return err
+		return syncError(err)
 	}
 	c.Response().Header().Set(echo.HeaderLocation, c.Request().URL.Path+"/"+stored.ID)
 	return c.JSON(http.StatusCreated, captureAnswer{stored, orEmpty(fs)})
@@ -64,22 +69,36 @@ func (s *Server) getCapture(c echo.Context) error {
 	return c.JSON(http.StatusOK, rec)
 }
 
+// updateCapture stores the body as a new revision. Its parent is the
+// revision named in the body (revision.id: the one the editor read), or
+// the current winner when none is named; an edit of a revision that has
+// since been superseded is kept beside the newer one as a conflict for the
+// coordinator, never written over it.
 func (s *Server) updateCapture(c echo.Context) error {
+	eng, err := s.engine()
+	if err != nil {
+		return err
+	}
 	rec, err := bindCapture(c, c.Param("id"))
 	if err != nil {
 		return err
 	}
-	stored, fs, err := s.store.UpdateCapture(rec)
+	stored, fs, err := eng.Update(rec)
 	if err != nil {
-		return err
+		return syncError(err)
 	}
 	return c.JSON(http.StatusOK, captureAnswer{stored, orEmpty(fs)})
 }
 
-// deleteCapture marks the capture deleted; it stays readable.
+// deleteCapture stores a deletion (tombstone) revision of the current
+// winner; the record stays readable and in its history.
 func (s *Server) deleteCapture(c echo.Context) error {
-	if err := s.store.DeleteCapture(c.Param("study"), c.Param("id")); err != nil {
+	eng, err := s.engine()
+	if err != nil {
 		return err
+	}
+	if _, err := eng.Delete(c.Param("study"), c.Param("id")); err != nil {
+		return syncError(err)
 	}
 	return c.NoContent(http.StatusNoContent)
 }

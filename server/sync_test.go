@@ -130,3 +130,125 @@ func TestSyncRequestErrors(t *testing.T) {
 		t.Fatalf("peer sync from another machine: %d", rec.Code)
 	}
 }
+
+// An edit through the capture API is a revision in the same transaction
+// as the store write, so a phone's later push of an edit made on the old
+// version is a conflict with both versions kept, not an overwrite of the
+// coordinator's edit (issue 5: "no accepted write is ever lost").
+func TestAPIEditThenStalePushIsConflict(t *testing.T) {
+	ts := newTestServer(t, nil)
+	base := "/api/v1/studies/" + ts.study.ID + "/captures"
+	a := ts.do(t, http.MethodPost, base, validCapture)
+	if a.status != http.StatusCreated {
+		t.Fatalf("create = %d %s", a.status, a.raw)
+	}
+	var created captureAnswer
+	a.decode(t, &created)
+	first := *created.Capture
+	if first.Revision.ID == "" || first.Revision.Depth != 1 {
+		t.Fatalf("created record has no first revision: %+v", first.Revision)
+	}
+
+	// The coordinator corrects the mass (the body names no revision: the
+	// edit is of the current version).
+	a = ts.do(t, http.MethodPut, base+"/"+first.ID, strings.Replace(validCapture, "21.5", "23", 1))
+	var upd captureAnswer
+	a.decode(t, &upd)
+	if a.status != http.StatusOK || len(upd.Capture.Revision.Parents) != 1 || upd.Capture.Revision.Parents[0] != first.Revision.ID {
+		t.Fatalf("update = %d %s; want a child revision of %s", a.status, a.raw, first.Revision.ID)
+	}
+	// Both revisions are in the change feed at once, without any adoption.
+	var page tsync.PullPage
+	ts.do(t, http.MethodGet, "/api/v1/sync/pull", "").decode(t, &page)
+	if len(page.Revisions) != 2 {
+		t.Fatalf("feed after create and edit holds %d revisions, want 2", len(page.Revisions))
+	}
+
+	// A phone that had the first version edits the notes offline and
+	// pushes its revision, whose parent is the first version.
+	phone := first
+	phone.Notes = "ear nicked"
+	phone.Revision = capture.Revision{Parents: []string{first.Revision.ID}, Stamp: tsync.Stamp{Wall: time.Now().UnixMilli(), Device: "phone-9"}.String(), Device: "phone-9"}
+	phone.Revision.ID, _ = tsync.RevisionID(&phone, phone.Revision.Parents, false)
+	pj, _ := json.Marshal(phone)
+	a = ts.do(t, http.MethodPost, "/api/v1/sync/push", `{"source":"phone-9","revisions":[`+string(pj)+`]}`)
+	var rep tsync.PushReply
+	a.decode(t, &rep)
+	if a.status != http.StatusOK || len(rep.Results) != 1 || rep.Results[0].Status != tsync.StatusStored || !rep.Results[0].Conflict {
+		t.Fatalf("stale push = %d %+v; want stored and a conflict", a.status, rep.Results)
+	}
+	a = ts.do(t, http.MethodGet, base+"/"+first.ID+"/history", "")
+	var h tsync.History
+	a.decode(t, &h)
+	want := []string{upd.Capture.Revision.ID, phone.Revision.ID}
+	if want[0] > want[1] {
+		want[0], want[1] = want[1], want[0]
+	}
+	if !h.Conflict || len(h.Revisions) != 3 || len(h.Leaves) != 2 || h.Leaves[0] != want[0] || h.Leaves[1] != want[1] {
+		t.Fatalf("history %+v; want leaves %v (the API edit and the phone's) and 3 revisions", h, want)
+	}
+	var mass23, notes bool
+	for _, r := range h.Revisions {
+		mass23 = mass23 || (r.Revision.ID == upd.Capture.Revision.ID && r.MassG != nil && *r.MassG == 23)
+		notes = notes || (r.Revision.ID == phone.Revision.ID && r.Notes == "ear nicked")
+	}
+	if !mass23 || !notes {
+		t.Fatalf("history lost a version: API edit kept %v, phone edit kept %v", mass23, notes)
+	}
+	var cur capture.Capture
+	ts.do(t, http.MethodGet, base+"/"+first.ID, "").decode(t, &cur)
+	if !cur.Revision.Conflict {
+		t.Errorf("the record is not shown in conflict: %+v", cur.Revision)
+	}
+
+	// An API edit made from the old version (the body names it, as the
+	// coordinator's editor does) is a third leaf, not an overwrite.
+	stale := first
+	stale.Observer = "second crew"
+	sj, _ := json.Marshal(stale)
+	a = ts.do(t, http.MethodPut, base+"/"+first.ID, string(sj))
+	var st captureAnswer
+	a.decode(t, &st)
+	if a.status != http.StatusOK || !st.Capture.Revision.Conflict {
+		t.Fatalf("stale API edit = %d %s; want stored as a conflict", a.status, a.raw)
+	}
+	ts.do(t, http.MethodGet, base+"/"+first.ID+"/history", "").decode(t, &h)
+	if len(h.Leaves) != 3 || len(h.Revisions) != 4 {
+		t.Fatalf("after a stale API edit: %d leaves, %d revisions; want 3 and 4", len(h.Leaves), len(h.Revisions))
+	}
+
+	// A base revision this server does not hold is refused.
+	stale.Revision = capture.Revision{ID: strings.Repeat("ab", 16)}
+	sj, _ = json.Marshal(stale)
+	if a = ts.do(t, http.MethodPut, base+"/"+first.ID, string(sj)); a.status != http.StatusConflict {
+		t.Errorf("edit of an unknown revision = %d %s, want 409", a.status, a.raw)
+	}
+	// A record in conflict is resolved, not deleted, from the API.
+	if a = ts.do(t, http.MethodDelete, base+"/"+first.ID, ""); a.status != http.StatusConflict {
+		t.Fatalf("delete of a record in conflict = %d %s, want 409", a.status, a.raw)
+	}
+	res := fmt.Sprintf(`{"leaves":["%s","%s","%s"]}`, h.Leaves[0], h.Leaves[1], h.Leaves[2])
+	if a = ts.do(t, http.MethodPost, base+"/"+first.ID+"/resolve", res); a.status != http.StatusOK {
+		t.Fatalf("resolve = %d %s", a.status, a.raw)
+	}
+	// Deleting stores a tombstone child of the winner; an edit naming the
+	// tombstone is refused (undoing a delete is a resolution).
+	if a = ts.do(t, http.MethodDelete, base+"/"+first.ID, ""); a.status != http.StatusNoContent {
+		t.Fatalf("delete = %d %s", a.status, a.raw)
+	}
+	ts.do(t, http.MethodGet, base+"/"+first.ID+"/history", "").decode(t, &h)
+	var tomb capture.Capture
+	for _, r := range h.Revisions {
+		if r.Revision.Deleted {
+			tomb = r
+		}
+	}
+	if tomb.Revision.ID == "" || len(h.Revisions) != 6 || h.Conflict {
+		t.Fatalf("delete made no tombstone revision: %+v", h)
+	}
+	tomb.Revision.Deleted = false
+	tj, _ := json.Marshal(tomb)
+	if a = ts.do(t, http.MethodPut, base+"/"+first.ID, string(tj)); a.status != http.StatusConflict {
+		t.Errorf("edit of a deletion = %d %s, want 409", a.status, a.raw)
+	}
+}

@@ -343,15 +343,27 @@ func (e *Engine) Create(c *capture.Capture) (*capture.Capture, capture.Findings,
 		rec.ID = u.String()
 	}
 	return e.local(func(t txn) (*capture.Capture, []string, capture.Findings, error) {
+		rec.Revision = capture.Revision{}
+		fs, err := t.prepare(rec)
+		if err != nil {
+			return nil, nil, nil, err
+		}
+		exists := fmt.Errorf("capture %s: %w: a record with this ID exists", rec.ID, capture.ErrConflict)
 		if _, ok, err := t.record(rec.ID); err != nil || ok {
 			if err == nil {
-				err = fmt.Errorf("capture %s: %w: a record with this ID exists", rec.ID, capture.ErrConflict)
+				err = exists
 			}
 			return nil, nil, nil, err
 		}
-		rec.Revision = capture.Revision{}
-		fs, err := t.prepare(rec)
-		return rec, nil, fs, err
+		// A record written to the capture store without sync and not yet
+		// adopted is there too.
+		if _, err := t.current(rec.StudyID, rec.ID); !errors.Is(err, capture.ErrNotFound) {
+			if err == nil {
+				err = exists
+			}
+			return nil, nil, nil, err
+		}
+		return rec, nil, fs, nil
 	})
 }
 
@@ -359,9 +371,11 @@ func (e *Engine) Create(c *capture.Capture) (*capture.Capture, capture.Findings,
 // parent is c.Revision.ID, the revision the editor started from, or the
 // current winner when that is empty. An edit of an older revision is kept
 // and makes the record a conflict for the coordinator to resolve; nothing
-// is overwritten. Errors: capture.ErrNotFound, capture.ErrConflict (the
-// record is deleted and no base revision was named), ErrMissingParent,
-// *capture.ValidationError.
+// is overwritten. An edit cannot start from a deleted revision (undoing a
+// delete is a resolution, see Resolve). Errors: capture.ErrNotFound,
+// capture.ErrConflict (the base revision, or the winner when none was
+// named, is deleted), ErrMissingParent (the base revision is not stored
+// here), *capture.ValidationError.
 func (e *Engine) Update(c *capture.Capture) (*capture.Capture, capture.Findings, error) {
 	rec := cloneCapture(c)
 	base := c.Revision.ID
@@ -376,9 +390,14 @@ func (e *Engine) Update(c *capture.Capture) (*capture.Capture, capture.Findings,
 				return nil, nil, nil, fmt.Errorf("capture %s: %w: it is deleted", rec.ID, capture.ErrConflict)
 			}
 			base = w.id
-		} else if _, ok, err := t.revision(rec.ID, base); err != nil || !ok {
+		} else if val, ok, err := t.revision(rec.ID, base); err != nil || !ok {
 			if err == nil {
 				err = fmt.Errorf("capture %s: base revision %q: %w", rec.ID, base, ErrMissingParent)
+			}
+			return nil, nil, nil, err
+		} else if h, err := revHeader(val); err != nil || h.deleted {
+			if err == nil {
+				err = fmt.Errorf("capture %s: %w: revision %s is a deletion", rec.ID, capture.ErrConflict, base)
 			}
 			return nil, nil, nil, err
 		}
@@ -389,12 +408,18 @@ func (e *Engine) Update(c *capture.Capture) (*capture.Capture, capture.Findings,
 }
 
 // Delete stores a tombstone revision of the record's current winner.
-// Deleting a record whose only leaf is deleted does nothing.
+// Deleting a record whose only leaf is deleted does nothing. A record in
+// conflict is not deleted (capture.ErrConflict): a tombstone of one leaf
+// would leave the others showing, and deleting them all would settle the
+// conflict unseen; Resolve with a deleted body does that on purpose.
 func (e *Engine) Delete(studyID, id string) (*capture.Capture, error) {
 	c, _, err := e.local(func(t txn) (*capture.Capture, []string, capture.Findings, error) {
 		rs, err := e.recordOf(t, studyID, id)
 		if err != nil {
 			return nil, nil, nil, err
+		}
+		if len(rs.leaves) > 1 {
+			return nil, nil, nil, fmt.Errorf("capture %s: %w: it is in conflict (%d versions); resolve it, as a deletion if need be", id, capture.ErrConflict, len(rs.leaves))
 		}
 		w := rs.leaves[winner(rs.leaves)]
 		body, err := e.revisionBody(t, id, w.id)
