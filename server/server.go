@@ -63,8 +63,15 @@ func (s *Server) Handler() http.Handler { return s.echo }
 // Config.ShutdownTimeout), and returns. Only after Serve returns may the
 // caller close the store. It returns nil after a clean shutdown.
 func (s *Server) Serve(ctx context.Context, ln net.Listener) error {
+	return s.ServeHandler(ctx, ln, s.echo)
+}
+
+// ServeHandler is Serve with another handler in front of the server's own
+// (for example the plain-HTTP port that also serves the phone setup page),
+// keeping the same timeouts and graceful shutdown. h must end in Handler().
+func (s *Server) ServeHandler(ctx context.Context, ln net.Listener, h http.Handler) error {
 	hs := &http.Server{
-		Handler:           s.echo,
+		Handler:           h,
 		ReadHeaderTimeout: s.cfg.ReadHeaderTimeout,
 		ReadTimeout:       s.cfg.ReadTimeout,
 		WriteTimeout:      s.cfg.WriteTimeout,

@@ -2,8 +2,11 @@ package main
 
 import (
 	"context"
+	"crypto/tls"
+	"errors"
 	"fmt"
 	"io"
+	"log/slog"
 	"net"
 	"os"
 	"os/signal"
@@ -12,6 +15,7 @@ import (
 
 	"tagtally/demo"
 	"tagtally/server"
+	"tagtally/server/camptls"
 )
 
 const serveHelp = `
@@ -23,6 +27,14 @@ connect; it prints the addresses to open.
 Stop it with Ctrl+C: records being saved at that moment are finished
 first. Every record the server has acknowledged is on disk, even if the
 computer loses power.
+
+Phones need HTTPS for the app to work offline. On first start serve makes
+a certificate authority for this camp (kept in the folder camp-tls beside
+the data file) and a certificate for this computer's addresses, renewed by
+itself when the addresses change or it nears expiry. Each phone trusts the
+authority once, from the setup page on the plain-HTTP port (the address
+ends in /setup; it shows a QR code of the HTTPS address and the steps for
+Android and iPhone). On this computer itself plain HTTP is enough.
 
 With --demo it first adds the invented demonstration study (a wood-mouse
 trapping grid) to the data file, so there is something to look at.`
@@ -36,6 +48,7 @@ func runServe(args []string, stdout io.Writer) error {
 	fs.SetOutput(stdout)
 	cfg.addDataFlag(fs)
 	cfg.addPortFlag(fs, "the port to listen on; phones use it in the address")
+	cfg.addTLSFlags(fs)
 	fs.StringVar(&cfg.Host, "host", "", "listen only on this IP address (e.g. 127.0.0.1 for this computer only); empty means every network interface")
 	withDemo := fs.Bool("demo", false, "add the invented demonstration study to the data file before serving (safe to repeat)")
 	if err := parseArgs(fs, args, 0); err != nil {
@@ -81,34 +94,106 @@ func serve(ctx context.Context, cfg config, withDemo bool, stdout io.Writer) (er
 	if err != nil {
 		return fmt.Errorf("cannot listen on port %d: %w (is another server using it? try --port)", cfg.Port, err)
 	}
-	printAddresses(stdout, cfg, ln.Addr().(*net.TCPAddr).Port)
-	if err := srv.Serve(ctx, ln); err != nil {
+	port := ln.Addr().(*net.TCPAddr).Port
+	if cfg.NoTLS {
+		printAddresses(stdout, cfg, port, nil)
+		return finishServing(stdout, srv.Serve(ctx, ln))
+	}
+
+	tlsLn, certs, err := listenTLS(cfg, scfg.Logger)
+	if err != nil {
+		ln.Close()
+		return err
+	}
+	printAddresses(stdout, cfg, port, certs)
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	go certs.Run(ctx, camptls.RefreshEvery)
+	// Either server failing stops both: a half-running camp server would
+	// leave phones or the coordinator puzzled.
+	plainErr := make(chan error, 1)
+	go func() {
+		plainErr <- srv.ServeHandler(ctx, ln, camptls.PlainHTTP(srv.Handler(), certs.SetupHandler()))
+		cancel()
+	}()
+	tlsErr := srv.Serve(ctx, tlsLn)
+	cancel()
+	return finishServing(stdout, errors.Join(tlsErr, <-plainErr))
+}
+
+func finishServing(stdout io.Writer, err error) error {
+	if err != nil {
 		return err
 	}
 	fmt.Fprintln(stdout, "Stopped; every acknowledged record is saved.")
 	return nil
 }
 
+// listenTLS opens the HTTPS port with the user's certificate or the camp
+// authority's. The default port falls back to a free one when taken
+// (printed with the addresses); a port the user chose must be free.
+func listenTLS(cfg config, log *slog.Logger) (net.Listener, *camptls.Manager, error) {
+	addr := net.JoinHostPort(cfg.Host, strconv.Itoa(cfg.TLSPort))
+	raw, err := net.Listen("tcp", addr)
+	if err != nil && !cfg.tlsPortSet {
+		raw, err = net.Listen("tcp", net.JoinHostPort(cfg.Host, "0"))
+	}
+	if err != nil {
+		return nil, nil, fmt.Errorf("cannot listen on HTTPS port %d: %w (is another server using it? try --tls-port, or --no-tls)", cfg.TLSPort, err)
+	}
+	port := raw.Addr().(*net.TCPAddr).Port
+	var certs *camptls.Manager
+	if cfg.TLSCert != "" {
+		certs, err = camptls.NewFixed(cfg.TLSCert, cfg.TLSKey, cfg.Host, port, log)
+	} else {
+		certs, err = camptls.NewManager(cfg.campTLSDir(), cfg.Host, port, log)
+	}
+	if err != nil {
+		raw.Close()
+		return nil, nil, err
+	}
+	return tls.NewListener(raw, certs.TLSConfig()), certs, nil
+}
+
 // printAddresses tells the user what to open: this computer's address and,
-// when listening on every interface, the LAN addresses phones can use.
-func printAddresses(w io.Writer, cfg config, port int) {
+// when listening on every interface, the addresses phones can use. certs
+// is nil without HTTPS.
+func printAddresses(w io.Writer, cfg config, port int, certs *camptls.Manager) {
 	fmt.Fprintf(w, "tagtally %s is serving the data file %s\n", version, cfg.Data)
+	portStr := strconv.Itoa(port)
 	host := cfg.Host
 	if host == "" || net.ParseIP(host).IsUnspecified() {
 		fmt.Fprintf(w, "Open on this computer:  http://localhost:%d/\n", port)
-		if lan := lanAddresses(); len(lan) > 0 {
-			fmt.Fprintln(w, "Open on phones and laptops on the same network:")
-			for _, ip := range lan {
-				fmt.Fprintf(w, "  http://%s/\n", net.JoinHostPort(ip, strconv.Itoa(port)))
-			}
-		} else {
+		lan := lanAddresses()
+		switch {
+		case len(lan) == 0:
 			fmt.Fprintln(w, "No network address found: phones cannot connect until this computer joins a network.")
+		case certs == nil:
+			fmt.Fprintln(w, "Open on phones and laptops on the same network (plain HTTP: the phone app will not work offline):")
+			for _, ip := range lan {
+				fmt.Fprintf(w, "  http://%s/\n", net.JoinHostPort(ip, portStr))
+			}
+		default:
+			fmt.Fprintln(w, "Phones on the same network: open the setup page once to trust this camp's certificate,")
+			for _, ip := range lan {
+				fmt.Fprintf(w, "  http://%s%s\n", net.JoinHostPort(ip, portStr), camptls.SetupPath)
+			}
+			fmt.Fprintln(w, "then the app (it works offline from then on):")
+			for _, a := range certs.Addresses() {
+				fmt.Fprintf(w, "  %s\n", a)
+			}
 		}
 		host = "localhost"
 	} else {
-		fmt.Fprintf(w, "Open:  http://%s/\n", net.JoinHostPort(host, strconv.Itoa(port)))
+		fmt.Fprintf(w, "Open:  http://%s/\n", net.JoinHostPort(host, portStr))
+		if certs != nil {
+			fmt.Fprintf(w, "Phones: set up at http://%s%s, then open https://%s/\n", net.JoinHostPort(host, portStr), camptls.SetupPath, net.JoinHostPort(host, strconv.Itoa(certs.Port())))
+		}
 	}
-	fmt.Fprintf(w, "API:   http://%s/api/v1 lists the endpoints\n", net.JoinHostPort(host, strconv.Itoa(port)))
+	if certs != nil && len(certs.CAPEM()) > 0 {
+		fmt.Fprintf(w, "Camp certificate authority: %s (keep it with the data file; phones trust it)\n", cfg.campTLSDir())
+	}
+	fmt.Fprintf(w, "API:   http://%s/api/v1 lists the endpoints\n", net.JoinHostPort(host, portStr))
 	fmt.Fprintln(w, "Stop with Ctrl+C (records being saved are finished first).")
 }
 

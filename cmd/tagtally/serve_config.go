@@ -22,16 +22,29 @@ type config struct {
 	// Host is the address to listen on; "" means every network interface,
 	// so phones on the camp Wi-Fi can connect.
 	Host string
+	// TLSPort is the HTTPS port for phones (0 picks a free one). When it
+	// was not chosen by the user and is taken, serve falls back to a free
+	// port rather than refusing to start.
+	TLSPort    int
+	tlsPortSet bool
+	// TLSCert and TLSKey are the user's own certificate and key (PEM);
+	// empty means the camp authority kept beside the data file.
+	TLSCert, TLSKey string
+	// NoTLS serves plain HTTP only (phones then cannot work offline).
+	NoTLS bool
 }
 
 const (
 	envData = "TAGTALLY_DATA"
 	envPort = "TAGTALLY_PORT"
+	envTLS  = "TAGTALLY_TLS_PORT"
+
+	defaultTLSPort = 8443
 )
 
 // defaultConfig returns the defaults with the environment applied.
 func defaultConfig() (config, error) {
-	c := config{Port: 8080}
+	c := config{Port: 8080, TLSPort: defaultTLSPort}
 	dir, err := dataDir()
 	if err == nil {
 		c.Data = filepath.Join(dir, "tagtally", "tagtally.db")
@@ -45,6 +58,13 @@ func defaultConfig() (config, error) {
 			return c, fmt.Errorf("%w: %s=%q is not a port number", errUsage, envPort, v)
 		}
 		c.Port = p
+	}
+	if v := os.Getenv(envTLS); v != "" {
+		p, err := strconv.Atoi(v)
+		if err != nil {
+			return c, fmt.Errorf("%w: %s=%q is not a port number", errUsage, envTLS, v)
+		}
+		c.TLSPort, c.tlsPortSet = p, true
 	}
 	return c, nil
 }
@@ -77,6 +97,25 @@ func (c *config) addPortFlag(fs *flag.FlagSet, what string) {
 	fs.IntVar(&c.Port, "port", c.Port, what+" (environment: "+envPort+")")
 }
 
+// addTLSFlags puts the HTTPS options of serve on a flag set.
+func (c *config) addTLSFlags(fs *flag.FlagSet) {
+	fs.Func("tls-port", fmt.Sprintf("the HTTPS port phones use for the offline app (default %d; environment: %s)", c.TLSPort, envTLS), func(v string) error {
+		p, err := strconv.Atoi(v)
+		if err != nil {
+			return fmt.Errorf("%q is not a port number", v)
+		}
+		c.TLSPort, c.tlsPortSet = p, true
+		return nil
+	})
+	fs.StringVar(&c.TLSCert, "tls-cert", "", "your own HTTPS certificate (PEM file) instead of the camp certificate authority; needs --tls-key")
+	fs.StringVar(&c.TLSKey, "tls-key", "", "the private key (PEM file) of --tls-cert")
+	fs.BoolVar(&c.NoTLS, "no-tls", false, "serve plain HTTP only; phones on the network then cannot use the app offline")
+}
+
+// campTLSDir is where the camp certificate authority is kept: beside the
+// data file, so a backup of that folder keeps phones' trust working.
+func (c *config) campTLSDir() string { return filepath.Join(filepath.Dir(c.Data), "camp-tls") }
+
 // validate checks the settings once, before anything is opened.
 func (c *config) validate() error {
 	if c.Data == "" {
@@ -84,6 +123,18 @@ func (c *config) validate() error {
 	}
 	if c.Port < 0 || c.Port > 65535 {
 		return fmt.Errorf("%w: port %d is out of range (1-65535, or 0 for any free port)", errUsage, c.Port)
+	}
+	if c.TLSPort < 0 || c.TLSPort > 65535 {
+		return fmt.Errorf("%w: HTTPS port %d is out of range (1-65535, or 0 for any free port)", errUsage, c.TLSPort)
+	}
+	if (c.TLSCert == "") != (c.TLSKey == "") {
+		return fmt.Errorf("%w: --tls-cert and --tls-key go together: give both or neither", errUsage)
+	}
+	if c.NoTLS && c.TLSCert != "" {
+		return fmt.Errorf("%w: --no-tls and --tls-cert contradict each other", errUsage)
+	}
+	if !c.NoTLS && c.Port != 0 && c.TLSPort == c.Port {
+		return fmt.Errorf("%w: the HTTPS port and --port are both %d; give them different ports", errUsage, c.Port)
 	}
 	if c.Host != "" && net.ParseIP(c.Host) == nil {
 		return fmt.Errorf("%w: --host %q is not an IP address of this machine", errUsage, c.Host)

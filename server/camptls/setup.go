@@ -40,7 +40,7 @@ var setupPage = template.Must(template.New("setup").Parse(`<!doctype html>
 <link rel="stylesheet" href="` + StylePath + `">
 </head><body>
 <h1>Set up this phone for the camp server</h1>
-<p>The field app works offline only over a secure connection. This camp server
+{{if .CAPEM}}<p>The field app works offline only over a secure connection. This camp server
 signs its own certificate, so each phone must trust the camp's certificate
 authority once. It is made on this laptop and is trusted only by phones that
 install it.</p>
@@ -61,7 +61,9 @@ install it.</p>
 <li>Settings, General, About, Certificate Trust Settings: switch on full trust for the tagtally camp authority.</li>
 </ol>
 
-<h2>3. Open the app</h2>
+{{else}}<p>The field app works offline only over a secure connection. This server
+uses its own certificate, so phones that trust its issuer can open the app directly.</p>
+{{end}}<h2>{{if .CAPEM}}3. {{end}}Open the app</h2>
 {{range $i, $a := .Addresses}}{{if eq $i 0}}<img src="` + QRPath + `" alt="QR code of {{$a}}">{{end}}
 <a class="button" href="{{$a}}">Open {{$a}}</a>{{end}}
 {{if not .Addresses}}<p>This laptop has no network address that phones can reach. Join it to the camp Wi-Fi and reload this page.</p>{{end}}
@@ -92,6 +94,10 @@ func (s *Setup) ServeHTTP(w http.ResponseWriter, r *http.Request) {
 			http.Error(w, "setup page failed", http.StatusInternalServerError)
 		}
 	case CAPath:
+		if len(s.CAPEM) == 0 {
+			http.NotFound(w, r)
+			return
+		}
 		w.Header().Set("Content-Type", "application/x-x509-ca-cert")
 		w.Header().Set("Content-Disposition", `attachment; filename="camp-ca.crt"`)
 		w.Write(s.CAPEM)
