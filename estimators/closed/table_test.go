@@ -289,3 +289,27 @@ func TestModelSelectionHandCalculation(t *testing.T) {
 	near(t, "table averaged N", rep.AveragedN.Estimate, nBar, 1e-9)
 	near(t, "table unconditional SE", rep.AveragedN.SE, se, 1e-9)
 }
+
+// TestTableAverageOfBoundaryEstimates: when the models carrying the weight
+// sit at N = Mt1 (every animal probably caught), the model-averaged N is
+// flagged; on data with interior estimates it is not.
+func TestTableAverageOfBoundaryEstimates(t *testing.T) {
+	// Invented: 8 animals, 3 occasions, nearly all recaptured; two lost on
+	// capture.
+	h := rows("110", "011", "100", "111", "010", "101", "001", "110")
+	h.Removed = []bool{false, true, false, false, true, false, false, false}
+	rep, err := Table(h, TableOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if rep.AveragedN == nil || len(rep.AveragedWarnings) != 1 || !strings.Contains(rep.AveragedWarnings[0], "M0") {
+		t.Errorf("averaged N %+v, warnings %q", rep.AveragedN, rep.AveragedWarnings)
+	}
+	rep, err = Table(readHistoryCSVForTest(t, "testdata/mth-invented.csv"), TableOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rep.AveragedWarnings) != 0 {
+		t.Errorf("interior estimates, yet warnings %q", rep.AveragedWarnings)
+	}
+}
