@@ -238,15 +238,17 @@ func writeEstimateJSON(w io.Writer, rep *closed.Report) error {
 	for _, avg := range []struct {
 		id, name string
 		v        *estimators.Value
+		warnings []string
 	}{
-		{"averaged", "model-averaged N (full-likelihood models)", rep.AveragedN},
-		{"averaged-conditional", "model-averaged N (Huggins models)", rep.ConditionalAveragedN},
+		{"averaged", "model-averaged N (full-likelihood models)", rep.AveragedN, rep.AveragedWarnings},
+		{"averaged-conditional", "model-averaged N (Huggins models)", rep.ConditionalAveragedN, rep.ConditionalAveragedWarnings},
 	} {
 		if avg.v == nil {
 			continue
 		}
 		o := estimateJSON{ID: avg.id, Name: avg.name, Family: "model average",
 			N: estFinite(avg.v.Estimate), SE: estFinite(avg.v.SE), CILow: estFinite(avg.v.Low), CIHigh: estFinite(avg.v.High), CIKind: avg.v.Kind,
+			Boundary: len(avg.warnings) > 0, Warnings: avg.warnings,
 			References: []string{"Burnham, K.P. & Anderson, D.R. (2002). Model Selection and Multimodel Inference, 2nd ed. Springer."}}
 		if err := enc.Encode(o); err != nil {
 			return err
@@ -345,10 +347,16 @@ func writeEstimateTable(w io.Writer, in *estimateInput, rep *closed.Report) erro
 	if v := rep.AveragedN; v != nil {
 		kinds[v.Kind] = true
 		p.printf("Model-averaged N: %s (SE %s), 95%% CI (%s, %s), %s (Burnham & Anderson 2002)\n", estNum(v.Estimate, 1), estNum(v.SE, 1), estNum(v.Low, 1), estNum(v.High, 1), estShortKind(v.Kind))
+		for _, w := range rep.AveragedWarnings {
+			p.printf("  Warning: %s\n", w)
+		}
 	}
 	group("Conditional likelihood (Huggins 1989), ranked among themselves only", closed.FamilyConditional, true)
 	if v := rep.ConditionalAveragedN; v != nil {
 		p.printf("Model-averaged N (Huggins models): %s (SE %s), 95%% CI (%s, %s)\n", estNum(v.Estimate, 1), estNum(v.SE, 1), estNum(v.Low, 1), estNum(v.High, 1))
+		for _, w := range rep.ConditionalAveragedWarnings {
+			p.printf("  Warning: %s\n", w)
+		}
 	}
 	group("Estimators without a likelihood (for comparison, not averaged)", closed.FamilyOther, false)
 	if len(flagged) > 0 {

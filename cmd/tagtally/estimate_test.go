@@ -253,3 +253,39 @@ func TestEstimateStoredStudy(t *testing.T) {
 		t.Errorf("unknown study: no error")
 	}
 }
+
+// TestEstimateAverageOfBoundaryFlagged: a removed column is read, and a
+// model average built on boundary estimates carries boundary and a warning
+// in the JSON and a warning line in the table.
+func TestEstimateAverageOfBoundaryFlagged(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "h.csv")
+	// Invented: 8 animals, 3 occasions, nearly all recaptured, 2 lost.
+	data := "id,history,removed\nA1,110,0\nA2,011,1\nA3,100,0\nA4,111,0\nA5,010,1\nA6,101,0\nA7,001,0\nA8,110,0\n"
+	if err := os.WriteFile(path, []byte(data), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	var buf bytes.Buffer
+	if err := runEstimate([]string{"--histories", path, "--json"}, &buf); err != nil {
+		t.Fatal(err)
+	}
+	var avg map[string]any
+	for _, line := range strings.Split(strings.TrimSpace(buf.String()), "\n") {
+		var o map[string]any
+		if err := json.Unmarshal([]byte(line), &o); err != nil {
+			t.Fatalf("%q: %v", line, err)
+		}
+		if o["id"] == "averaged" {
+			avg = o
+		}
+	}
+	if avg == nil || avg["boundary"] != true || avg["warnings"] == nil {
+		t.Fatalf("averaged line %v", avg)
+	}
+	buf.Reset()
+	if err := runEstimate([]string{"--histories", path}, &buf); err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(buf.String(), "Warning: the average leans on boundary estimates") || !strings.Contains(buf.String(), "8 animals, 3 occasions") {
+		t.Errorf("table:\n%s", buf.String())
+	}
+}

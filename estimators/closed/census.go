@@ -257,26 +257,33 @@ func Schnabel(c Census, plusOne bool) (*estimators.Result, error) {
 //	N = Σ C_t M_t² / Σ R_t M_t
 //	var(1/N) = [Σ R_t²/C_t - (Σ R_t M_t)²/Σ C_t M_t²] / (s - 2) / Σ C_t M_t²
 //
-// with s the number of occasions with marked animals at large (Seber 1982,
-// ch. 4). The interval is 1/N ± t(s-2)·SE(1/N), inverted; a
-// non-positive lower limit on 1/N leaves the upper limit of N unbounded,
-// reported as a warning and an upper limit of +Inf is avoided by capping at
-// 10^6·N. It needs at least three occasions with marked animals at large
-// (ErrTooFewOccasions) and some recaptures (ErrNoRecaptures).
+// with s the number of samples (Seber 1982, ch. 4; Krebs 1999, ch. 2).
+// The first sample has no marked animals at large and gives no point to
+// the regression, so the s - 1 points fitted through the origin with one
+// slope leave s - 2 residual degrees of freedom; in general the degrees of
+// freedom are (occasions with marked animals at large and a catch) - 1,
+// which is s - 2 when every occasion caught something. The interval is
+// 1/N ± t(df)·SE(1/N), inverted; a non-positive lower limit on 1/N leaves
+// the upper limit of N unbounded, reported as a warning and capped at
+// 10^6·N rather than +Inf. It needs at least two occasions with marked
+// animals at large (ErrTooFewOccasions) and some recaptures
+// (ErrNoRecaptures).
 func SchumacherEschmeyer(c Census) (*estimators.Result, error) {
 	const name = "Schumacher-Eschmeyer"
 	if err := c.Validate(); err != nil {
 		return nil, fmt.Errorf("%s: %w", name, err)
 	}
 	s := sumCensus(c)
-	if s.used < 3 {
-		return nil, fmt.Errorf("%s: %w: need at least 3 occasions with marked animals at large, have %d", name, estimators.ErrTooFewOccasions, s.used)
+	if s.used < 2 {
+		return nil, fmt.Errorf("%s: %w: need at least 2 occasions with marked animals at large (3 samples), have %d", name, estimators.ErrTooFewOccasions, s.used)
 	}
 	if s.sumR == 0 || s.sumRM == 0 {
 		return nil, fmt.Errorf("%s: %w: no marked animal was ever recaptured", name, estimators.ErrNoRecaptures)
 	}
 	n := s.sumCM2 / s.sumRM
-	df := float64(s.used - 2)
+	// One slope fitted to s.used points: s.used - 1 residual degrees of
+	// freedom, Seber's s - 2 with s counting the first sample too.
+	df := float64(s.used - 1)
 	resid := s.sumR2overC - s.sumRM*s.sumRM/s.sumCM2
 	if resid < 0 { // rounding when the points lie exactly on the line
 		resid = 0

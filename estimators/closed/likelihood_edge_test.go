@@ -198,7 +198,7 @@ func TestProperties(t *testing.T) {
 	}
 }
 
-// TestAnalyticGradients compares the analytic gradients of Mth and Huggins
+// TestAnalyticGradients compares the analytic gradients of Mth, Mtb and Huggins
 // with central differences at arbitrary points, with losses on capture and
 // time effects.
 func TestAnalyticGradients(t *testing.T) {
@@ -214,6 +214,11 @@ func TestAnalyticGradients(t *testing.T) {
 	}
 	x = append(x, 1.3, -0.4)
 	checkGradient(t, "Mth", m.ll, m.grad, x)
+	mtb, _, err := mtbModel(h)
+	if err != nil {
+		t.Fatal(err)
+	}
+	checkGradient(t, "Mtb", mtb.ll, mtb.grad, append(x[:occ+1:occ+1], 0.7))
 
 	// Huggins, at a point away from the optimum (standardised covariates).
 	ev := hugginsTestEval(t, h, []string{"male", "mass"}, true)

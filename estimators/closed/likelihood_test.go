@@ -398,9 +398,12 @@ func TestLikelihoodGrid(t *testing.T) {
 // equations come from the ratio L(N)/L(N−1) over whole numbers N; here N is
 // continuous through lnΓ(N+1) − lnΓ(N−Mt1+1), whose derivative
 // ψ(N+1) − ψ(N−Mt1+1) is close to ln(N/(N−Mt1)) but not equal to it, so
-// the roots agree to within one animal, not exactly. The whole-number N
-// with the highest profile likelihood must be one of the two whole numbers
-// next to N̂.
+// the roots agree closely, not exactly: within one animal on these data,
+// while on a flat profile the gap can be a few animals (two on Krebs's
+// sunfish counts, TestTwoOccasionLikelihoodsArePetersen; the exact
+// equations are checked in TestExactEstimatingEquations). The whole-number
+// N with the highest profile likelihood must be one of the two whole
+// numbers next to N̂.
 func TestPublishedEstimatingEquations(t *testing.T) {
 	t.Run("M0, Otis et al. (1978)", func(t *testing.T) {
 		// Mt1 = N [1 − (1 − n./(tN))^t]

@@ -93,8 +93,10 @@ func mhModel(h *estimators.Histories) (*model, [][]float64, error) {
 //	lnL = lnΓ(N+1) − lnΓ(N−Mt1+1) + Σ_ω n_ω ln π_ω + (N−Mt1) ln π_0
 //	π_ω = Σ_c w_c Π_j p_cj^x_j (1−p_cj)^(1−x_j)   (over occasions available)
 //
-// with n_ω the animals sharing history ω: the likelihood runs over distinct
-// histories, not animals. K = t + 3; at least 3 occasions. Identifiable
+// with n_ω the animals sharing history ω. The likelihood is evaluated from
+// the captures per occasion and the capture frequencies (by loss occasion),
+// which are sufficient for it (see mthEval), so its cost grows with the
+// occasions, not the animals. K = t + 3; at least 3 occasions. Identifiable
 // when the classes differ (δ ≠ 0 and 0 < w < 1); otherwise it reduces to Mt
 // and the information matrix is singular (SEs 0, with a warning).
 func Mth(h *estimators.Histories) (*estimators.Result, error) {
@@ -162,31 +164,68 @@ func mthModel(h *estimators.Histories) (*model, [][]float64, error) {
 	return m, starts, nil
 }
 
-// mthEval evaluates the Mth log-likelihood and its gradient over distinct
-// histories. For class c the log-probability of a history is
+// mthEval evaluates the Mth log-likelihood and its gradient from
+// sufficient statistics. For class c the log-probability of a history ω is
 //
 //	Σ_{j available} ln(1−p_cj) + Σ_{j caught} logit p_cj
 //
-// so each history costs O(captures) after O(t) set-up per evaluation.
+// and logit p_2j = logit p_1j + δ, so the caught-occasion sum of class 2 is
+// that of class 1 plus δ·k_ω (k_ω captures). Factoring out the class-1 sum,
+//
+//	Σ_ω n_ω ln π_ω = Σ_j n_j α_j + Σ_g n_g ln Σ_c w_c exp(A_cg + [c=2] δ k_g)
+//
+// where g runs over the groups of animals with the same number of captures
+// k_g and the same availability (caught to the end, or lost on capture at
+// occasion L), and A_cg = Σ_{j available} ln(1−p_cj). The captures per
+// occasion n_j and these groups are sufficient (the Rasch-model property of
+// Mth without interaction), so each evaluation costs O(t) per group, at
+// most t groups of animals never lost and t² of lost ones, whatever the
+// number of animals or distinct histories.
 type mthEval struct {
-	st       *captureStats
-	caughtAt [][]int // occasions at which each pattern was caught
-	lq       [2][]float64
-	prefix   [2][]float64 // prefix[c][j] = Σ_{i<=j} ln(1−p_ci)
-	p        [2][]float64
-	eta      [2][]float64
-	lostW    [2][]float64 // Σ count·r_c of lost patterns by last occasion
-	nCaught  []float64
+	st      *captureStats
+	groups  []mthGroup
+	lq      [2][]float64
+	prefix  [2][]float64 // prefix[c][j] = Σ_{i<=j} ln(1−p_ci)
+	p       [2][]float64
+	eta     [2][]float64
+	lostW   [2][]float64 // Σ count·r_c of lost groups by last occasion
+	nCaught []float64
+}
+
+// mthGroup is the animals with k captures that were available to the end
+// (lost false) or lost on capture at occasion last.
+type mthGroup struct {
+	k     float64
+	lost  bool
+	last  int
+	count float64
 }
 
 func newMthEval(st *captureStats) *mthEval {
-	e := &mthEval{st: st, caughtAt: make([][]int, len(st.patterns)), nCaught: st.n}
-	for i, p := range st.patterns {
-		for j, c := range p.caught {
+	e := &mthEval{st: st, nCaught: st.n}
+	type key struct {
+		k, last int
+		lost    bool
+	}
+	index := map[key]int{}
+	for _, p := range st.patterns {
+		k := 0
+		for _, c := range p.caught {
 			if c {
-				e.caughtAt[i] = append(e.caughtAt[i], j)
+				k++
 			}
 		}
+		kk := key{k: k, lost: p.lost}
+		if p.lost {
+			kk.last = p.last
+		}
+		i, ok := index[kk]
+		if !ok {
+			i = len(e.groups)
+			index[kk] = i
+			e.groups = append(e.groups, mthGroup{k: float64(k), lost: p.lost, last: kk.last})
+		}
+		e.groups[i].count += p.count
 	}
 	t := st.t
 	for c := 0; c < 2; c++ {
@@ -224,39 +263,39 @@ func (e *mthEval) eval(x []float64, g []float64) float64 {
 		}
 	}
 	v := nTerm(st.mt1, f0)
-	// R[c]: Σ count·r_c over histories available on every occasion
+	for j := 0; j < t; j++ {
+		v += e.nCaught[j] * e.eta[0][j]
+	}
+	// R[c]: Σ count·r_c over animals available on every occasion
 	// (including the f0 unseen animals); K2: Σ count·r_2·captures.
 	var R [2]float64
 	K2 := 0.0
-	for i := range st.patterns {
-		pt := &st.patterns[i]
+	for i := range e.groups {
+		gr := &e.groups[i]
 		var l [2]float64
 		for c := 0; c < 2; c++ {
 			base := e.prefix[c][t-1]
-			if pt.lost {
-				base = e.prefix[c][pt.last]
+			if gr.lost {
+				base = e.prefix[c][gr.last]
 			}
-			s := lw[c] + base
-			for _, j := range e.caughtAt[i] {
-				s += e.eta[c][j]
-			}
-			l[c] = s
+			l[c] = lw[c] + base
 		}
+		l[1] += delta * gr.k
 		lse := logSumExp(l[0], l[1])
-		v += pt.count * lse
+		v += gr.count * lse
 		if g == nil {
 			continue
 		}
 		r1 := math.Exp(l[0] - lse)
 		r := [2]float64{r1, 1 - r1}
 		for c := 0; c < 2; c++ {
-			if pt.lost {
-				e.lostW[c][pt.last] += pt.count * r[c]
+			if gr.lost {
+				e.lostW[c][gr.last] += gr.count * r[c]
 			} else {
-				R[c] += pt.count * r[c]
+				R[c] += gr.count * r[c]
 			}
 		}
-		K2 += pt.count * r[1] * float64(len(e.caughtAt[i]))
+		K2 += gr.count * r[1] * gr.k
 	}
 	l0 := [2]float64{lw[0] + e.prefix[0][t-1], lw[1] + e.prefix[1][t-1]}
 	lse0 := logSumExp(l0[0], l0[1])
@@ -270,12 +309,9 @@ func (e *mthEval) eval(x []float64, g []float64) float64 {
 	g[0] = f0 * (nTermDf0(st.mt1, f0) + lse0)
 	R[0] += f0 * r0
 	R[1] += f0 * (1 - r0)
-	// Weight of class c among histories still available at j: R[c] plus
-	// lost histories whose last capture is at j or later.
+	// Weight of class c among animals still available at j: R[c] plus
+	// lost groups whose last capture is at j or later.
 	var tail [2]float64
-	for c := 0; c < 2; c++ {
-		tail[c] = 0
-	}
 	gd := K2
 	for j := t - 1; j >= 0; j-- {
 		tail[0] += e.lostW[0][j]
@@ -285,7 +321,7 @@ func (e *mthEval) eval(x []float64, g []float64) float64 {
 		gd -= a1 * e.p[1][j]
 	}
 	g[t+1] = gd
-	// d/dω: Σ count (r_1 − w) over histories and the f0 unseen animals.
+	// d/dω: Σ count (r_1 − w) over animals and the f0 unseen ones.
 	total := float64(st.mt1) + f0
 	class1 := R[0]
 	for j := 0; j < t; j++ {

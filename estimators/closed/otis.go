@@ -237,6 +237,28 @@ func mtbModel(h *estimators.Histories) (*model, [][]float64, error) {
 			}
 			return v
 		},
+		// d/dη of s ln p + f ln(1−p) is s − (s+f)p; d/df0 of the
+		// first-capture terms is ln(1−p_j) each; the chain rule gives
+		// f0 times that for x[0] = ln f0.
+		grad: func(g, x []float64) {
+			f0 := math.Exp(x[0])
+			b := x[t+1]
+			g0 := nTermDf0(st.mt1, f0)
+			gb := 0.0
+			for j := 0; j < t; j++ {
+				eta := x[j+1]
+				g0 -= softplus(eta)
+				gj := st.u[j] - (st.u[j]+notYet[j]+f0)*estimators.Expit(eta)
+				if st.marked[j] > 0 {
+					d := st.m[j] - st.marked[j]*estimators.Expit(eta+b)
+					gj += d
+					gb += d
+				}
+				g[j+1] = gj
+			}
+			g[0] = f0 * g0
+			g[t+1] = gb
+		},
 		params: func(x []float64, cov func(i, j int) float64) []estimators.Named {
 			out := make([]estimators.Named, 0, 2*t+1)
 			for j := 0; j < t; j++ {

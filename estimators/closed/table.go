@@ -194,6 +194,29 @@ type Report struct {
 	AveragedN *estimators.Value `json:"averaged_N,omitempty"`
 	// ConditionalAveragedN is the same over the Huggins fits.
 	ConditionalAveragedN *estimators.Value `json:"conditional_averaged_N,omitempty"`
+	// AveragedWarnings and ConditionalAveragedWarnings flag an average
+	// that leans on boundary estimates (see averageWarnings); empty when
+	// there is nothing to say.
+	AveragedWarnings            []string `json:"averaged_warnings,omitempty"`
+	ConditionalAveragedWarnings []string `json:"conditional_averaged_warnings,omitempty"`
+}
+
+// averageWarnings says when a model-averaged N leans on boundary estimates:
+// a model at N = Mt1 has an SE that says nothing about precision (often 0),
+// so the unconditional SE and interval built from it (Burnham & Anderson
+// 2002) understate the uncertainty. Models with under 1% of the weight are
+// ignored (common practice: they hardly move the average).
+func averageWarnings(rows []Row) []string {
+	var names []string
+	for _, r := range rows {
+		if r.Ranked && r.Weight >= 0.01 && r.Result != nil && r.Result.Boundary {
+			names = append(names, r.Name)
+		}
+	}
+	if len(names) == 0 {
+		return nil
+	}
+	return []string{fmt.Sprintf("the average leans on boundary estimates (%s): their standard errors say little about precision, so the averaged SE and interval understate the uncertainty; read those models' own intervals and warnings", strings.Join(names, ", "))}
 }
 
 // Table runs the closed-population models on h and assembles the model
@@ -262,6 +285,12 @@ func Table(h *estimators.Histories, opts TableOptions) (*Report, error) {
 	rep.Rows = append(append(append(rep.Rows, full...), cond...), other...)
 	rep.AveragedN = avg
 	rep.ConditionalAveragedN = condAvg
+	if avg != nil {
+		rep.AveragedWarnings = averageWarnings(full)
+	}
+	if condAvg != nil {
+		rep.ConditionalAveragedWarnings = averageWarnings(cond)
+	}
 	return rep, nil
 }
 

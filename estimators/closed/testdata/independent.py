@@ -57,10 +57,13 @@ for C, R in [([32, 41, 38, 45, 36, 40], [0, 5, 9, 14, 15, 20]),
     y = (R[use] / C[use]) * w
     slope, res, *_ = np.linalg.lstsq(A, y, rcond=None)
     b = slope[0]
-    s = use.sum()
+    # Residual degrees of freedom: one slope fitted to the points with
+    # marked animals at large, i.e. Seber's (1982) s - 2 with s counting
+    # the first sample (which has no marked animals and gives no point).
+    df = use.sum() - 1
     rss = ((y - A[:, 0] * b) ** 2).sum()
-    se_b = math.sqrt(rss / (s - 2) / (A[:, 0] ** 2).sum())
-    tq = stats.t.ppf(0.975, s - 2)
+    se_b = math.sqrt(rss / df / (A[:, 0] ** 2).sum())
+    tq = stats.t.ppf(0.975, df)
     entry = {
         "caught": C.tolist(), "recaptured": R.tolist(),
         "schnabel_plus1": sCM / (sR + 1), "schnabel": sCM / sR,
