@@ -149,3 +149,68 @@ func TestEstimateOpenBadInput(t *testing.T) {
 		}
 	}
 }
+
+// TestEstimateOpenGoodnessOfFit: the report carries TEST 2 + TEST 3 and
+// takes c-hat from it (its c-hat when above 1, else 1) unless --c-hat is
+// given, which then wins.
+func TestEstimateOpenGoodnessOfFit(t *testing.T) {
+	type report struct {
+		GOF *struct {
+			CHat    float64 `json:"c_hat"`
+			Overall struct {
+				ChiSquare float64 `json:"chi_square"`
+				DF        int     `json:"df"`
+			}
+		} `json:"goodness_of_fit"`
+		CHat       float64 `json:"c_hat"`
+		CHatSource string  `json:"c_hat_source"`
+		CJS        struct {
+			Criterion string `json:"criterion"`
+		} `json:"cjs"`
+	}
+	for _, grouped := range []bool{false, true} {
+		path := openHistoriesFile(t, openHistoriesCSV(grouped))
+		var out bytes.Buffer
+		if err := runEstimate([]string{"--open", "--json", "--histories", path}, &out); err != nil {
+			t.Fatal(err)
+		}
+		var rep report
+		if err := json.Unmarshal(out.Bytes(), &rep); err != nil {
+			t.Fatal(err)
+		}
+		if rep.GOF == nil || rep.GOF.Overall.DF == 0 {
+			t.Fatalf("grouped %v: no goodness of fit: %s", grouped, out.String())
+		}
+		if got := rep.GOF.Overall.ChiSquare / float64(rep.GOF.Overall.DF); got != rep.GOF.CHat {
+			t.Errorf("c-hat %g, chi-square/df %g", rep.GOF.CHat, got)
+		}
+		want := max(1, rep.GOF.CHat)
+		wantCrit := "AICc"
+		if want > 1 {
+			wantCrit = "QAICc"
+		}
+		if rep.CHat != want || rep.CHatSource != "goodness of fit" || rep.CJS.Criterion != wantCrit {
+			t.Errorf("grouped %v: c-hat %g from %q, criterion %s; want %g from the test, %s", grouped, rep.CHat, rep.CHatSource, rep.CJS.Criterion, want, wantCrit)
+		}
+		out.Reset()
+		if err := runEstimate([]string{"--open", "--json", "--c-hat", "2.5", "--histories", path}, &out); err != nil {
+			t.Fatal(err)
+		}
+		rep = report{}
+		if err := json.Unmarshal(out.Bytes(), &rep); err != nil {
+			t.Fatal(err)
+		}
+		if rep.CHat != 2.5 || rep.CHatSource != "--c-hat" || rep.CJS.Criterion != "QAICc" {
+			t.Errorf("--c-hat 2.5: c-hat %g from %q, criterion %s", rep.CHat, rep.CHatSource, rep.CJS.Criterion)
+		}
+	}
+	var out bytes.Buffer
+	if err := runEstimate([]string{"--open", "--histories", openHistoriesFile(t, openHistoriesCSV(false))}, &out); err != nil {
+		t.Fatal(err)
+	}
+	for _, want := range []string{"Goodness of fit of the CJS model phi(t) p(t)", "TEST 3.SR", "TEST 2 + TEST 3", "c-hat used for the model table"} {
+		if !strings.Contains(out.String(), want) {
+			t.Errorf("text output lacks %q", want)
+		}
+	}
+}
