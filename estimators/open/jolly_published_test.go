@@ -2,6 +2,7 @@ package open
 
 import (
 	"encoding/csv"
+	"fmt"
 	"math"
 	"os"
 	"strconv"
@@ -171,6 +172,57 @@ func TestJollySeberUnadjustedDegenerate(t *testing.T) {
 					t.Errorf("occasion %d: %s = %+v", i+1, name, v)
 				}
 			}
+		}
+	}
+}
+
+// TestJollySeberUnadjustedIsCJSTime: Jolly's original estimates of phi_i
+// and p_i are the maximum-likelihood estimates of the CJS model phi(t)
+// p(t) (Seber 1982, ch. 5; Pollock et al. 1990; from memory), so on the
+// dipper m-array (Lebreton et al. 1992, from memory) JollySeberUnadjusted
+// and CJS must agree to the optimiser's precision, and both must give the
+// published phi(t) p(t) survivals checked in TestCJSDipperTimePublished.
+// There are no losses on capture in these data, so n_i = R_i; n_7 is not
+// in the m-array and is set to the marked animals caught on occasion 7 (it
+// enters no estimate compared here).
+func TestJollySeberUnadjustedIsCJSTime(t *testing.T) {
+	m := dipper(t)
+	T := m.Occasions()
+	caught := append([]int(nil), m.Released...)
+	for i := 0; i < T-1; i++ {
+		caught[T-1] += m.M[i][T-1]
+	}
+	s, err := Summarize(m, caught)
+	if err != nil {
+		t.Fatal(err)
+	}
+	js, err := JollySeberUnadjusted(s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	cjs, err := CJS(m, Time, Time)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// Lebreton et al. (1992), phi(t) p(t) survivals, from memory (as in
+	// TestCJSDipperTimePublished).
+	published := []float64{0.718, 0.435, 0.478, 0.626, 0.599}
+	for i := 0; i < T-2; i++ {
+		got := js.Occasions[i].Phi
+		want := param(t, cjs, fmt.Sprintf("phi[%d]", i+1))
+		if got == nil || math.Abs(got.Estimate-want.Estimate) > 2e-5 {
+			t.Errorf("phi_%d: Jolly %v, CJS phi(t) p(t) %.5f", i+1, got, want.Estimate)
+			continue
+		}
+		if i < len(published) && math.Abs(got.Estimate-published[i]) > 0.0006 {
+			t.Errorf("phi_%d = %.4f, Lebreton et al. (1992) %.3f (from memory)", i+1, got.Estimate, published[i])
+		}
+	}
+	for i := 1; i < T-1; i++ {
+		got := js.Occasions[i].P
+		want := param(t, cjs, fmt.Sprintf("p[%d]", i+1))
+		if got == nil || math.Abs(got.Estimate-want.Estimate) > 2e-5 {
+			t.Errorf("p_%d: Jolly %v, CJS phi(t) p(t) %.5f", i+1, got, want.Estimate)
 		}
 	}
 }
