@@ -270,7 +270,11 @@ func jollySeber(s Summary, adjusted bool) (*JollySeberResult, error) {
 	hasPhi := make([]bool, t)
 	for i := 0; i < t-2; i++ {
 		if !hasM[i] || !hasM[i+1] {
-			note(i, "M is not estimable on occasion %d or %d: phi cannot be estimated", i+1, i+2)
+			missing := i + 1
+			if hasM[i] {
+				missing = i + 2
+			}
+			note(i, "M is not estimable on occasion %d: phi cannot be estimated", missing)
 			continue
 		}
 		at := M[i] - m(i) + R(i) // marked animals alive just after release on i
@@ -332,9 +336,12 @@ func jollyUnadjustedM(s Summary, i int, M, N []float64, hasM, hasN []bool, note 
 	case s.MissedAlive[i] == 0:
 		M[i] = m // no marked animal known to have been missed
 	case s.Recaptured[i] == 0:
-		if s.Released[i] == 0 && s.Caught[i] > 0 {
+		switch {
+		case s.Caught[i] == 0:
+			note(i, "nothing was caught here (n = 0): without the small-sample adjustment M, N and p cannot be estimated")
+		case s.Released[i] == 0:
 			note(i, "no animal was released here (all %d caught were lost on capture, R = 0): without the small-sample adjustment M, N and p cannot be estimated", s.Caught[i])
-		} else {
+		default:
 			note(i, "no animal released here was caught again (r = 0): without the small-sample adjustment M, N and p cannot be estimated")
 		}
 		return false
