@@ -44,10 +44,13 @@ type openCJSReport struct {
 }
 
 type openCJSModel struct {
-	Name     string             `json:"name"`
-	LogLik   float64            `json:"loglik"`
-	Params   int                `json:"params"`
-	AICc     float64            `json:"aicc"`
+	Name   string  `json:"name"`
+	LogLik float64 `json:"loglik"`
+	Params int     `json:"params"`
+	AICc   float64 `json:"aicc"`
+	// QAICc is set when the table is ranked by QAICc (c-hat > 1); delta
+	// and weight are then on QAICc.
+	QAICc    *float64           `json:"qaicc,omitempty"`
 	Delta    float64            `json:"delta"`
 	Weight   float64            `json:"weight"`
 	Phi      []estimators.Named `json:"phi"`
@@ -183,11 +186,15 @@ func estimateOpen(in *estimateInput, cHat float64, stdout io.Writer) error {
 			Name:     strings.TrimPrefix(r.Method, "CJS "),
 			LogLik:   r.LogLik,
 			Params:   r.Params,
-			AICc:     row.Criterion,
+			AICc:     r.AICc,
 			Delta:    row.Delta,
 			Weight:   row.Weight,
 			Boundary: r.Boundary,
 			Warnings: r.Warnings,
+		}
+		if tab.CriterionName != "AICc" {
+			q := row.Criterion
+			mod.QAICc = &q
 		}
 		for _, p := range r.Parameters {
 			switch {
@@ -268,7 +275,11 @@ func writeOpenText(w io.Writer, rep *openReport) error {
 		if m.Boundary {
 			flag = "  (boundary estimate)"
 		}
-		fmt.Fprintf(tw, "%s\t%d\t%.2f\t%.2f\t%.2f\t%.3f\t%s\n", m.Name, m.Params, -2*m.LogLik, m.AICc, m.Delta, m.Weight, flag)
+		crit := m.AICc
+		if m.QAICc != nil {
+			crit = *m.QAICc
+		}
+		fmt.Fprintf(tw, "%s\t%d\t%.2f\t%.2f\t%.2f\t%.3f\t%s\n", m.Name, m.Params, -2*m.LogLik, crit, m.Delta, m.Weight, flag)
 	}
 	if err := tw.Flush(); err != nil {
 		return err
