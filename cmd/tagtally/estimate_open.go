@@ -21,8 +21,17 @@ type openReport struct {
 	Occasions   int                    `json:"occasions"`
 	LostOnCatch int                    `json:"lost_on_capture"`
 	JollySeber  *open.JollySeberResult `json:"jolly_seber"`
-	CJS         openCJSReport          `json:"cjs"`
-	Cautions    []string               `json:"cautions"`
+	// GOF is TEST 2 + TEST 3 of the CJS model phi(t) p(t) (by group when
+	// the CJS table has groups); nil when the tests could not be run
+	// (GOFError says why).
+	GOF      *open.GOF `json:"goodness_of_fit"`
+	GOFError string    `json:"goodness_of_fit_error,omitempty"`
+	// CHat is the overdispersion factor the CJS table used, and
+	// CHatSource where it came from: "--c-hat" or "goodness of fit".
+	CHat       float64       `json:"c_hat"`
+	CHatSource string        `json:"c_hat_source"`
+	CJS        openCJSReport `json:"cjs"`
+	Cautions   []string      `json:"cautions"`
 }
 
 type openCJSReport struct {
@@ -35,10 +44,13 @@ type openCJSReport struct {
 }
 
 type openCJSModel struct {
-	Name     string             `json:"name"`
-	LogLik   float64            `json:"loglik"`
-	Params   int                `json:"params"`
-	AICc     float64            `json:"aicc"`
+	Name   string  `json:"name"`
+	LogLik float64 `json:"loglik"`
+	Params int     `json:"params"`
+	AICc   float64 `json:"aicc"`
+	// QAICc is set when the table is ranked by QAICc (c-hat > 1); delta
+	// and weight are then on QAICc.
+	QAICc    *float64           `json:"qaicc,omitempty"`
 	Delta    float64            `json:"delta"`
 	Weight   float64            `json:"weight"`
 	Phi      []estimators.Named `json:"phi"`
@@ -63,15 +75,22 @@ func init() {
 	estimateExtensions = append(estimateExtensions, estimateExtension{
 		flags: func(f *flag.FlagSet) {
 			fs = f
-			openFlag = f.Bool("open", false, "open-population estimates instead: the Jolly-Seber table by occasion and the Cormack-Jolly-Seber model table (group models when every animal has a group); with --json one JSON object")
+			openFlag = f.Bool("open", false, "open-population estimates instead: the Jolly-Seber table by occasion, the goodness-of-fit tests of the Cormack-Jolly-Seber model and its model table (group models when every animal has a group), ranked by QAICc when the tests find c-hat above 1 unless --c-hat is given; with --json one JSON object")
 		},
 		run: func(in *estimateInput, stdout io.Writer) (bool, error) {
 			if openFlag == nil || !*openFlag {
 				return false, nil
 			}
-			cHat := 1.0
-			if f := fs.Lookup("c-hat"); f != nil {
-				v, err := strconv.ParseFloat(f.Value.String(), 64)
+			// An explicit --c-hat wins; otherwise (cHat = 0) the
+			// goodness-of-fit test supplies it.
+			cHat := 0.0
+			fs.Visit(func(f *flag.Flag) {
+				if f.Name == "c-hat" {
+					cHat = -1
+				}
+			})
+			if cHat < 0 {
+				v, err := strconv.ParseFloat(fs.Lookup("c-hat").Value.String(), 64)
 				if err != nil {
 					return true, fmt.Errorf("%w: --c-hat: %v", errUsage, err)
 				}
@@ -83,10 +102,15 @@ func init() {
 }
 
 // estimateOpen runs the open-population part of `tagtally estimate`:
-// the Jolly-Seber table by occasion for all animals together, and the CJS
-// model table (group models too when every animal has a group label and
-// there are at least two groups), ranked by QAICc when cHat > 1. It
-// writes text, or one JSON object when in.JSON.
+// the Jolly-Seber table by occasion for all animals together, the
+// goodness-of-fit tests of the CJS model phi(t) p(t) (TEST 2 + TEST 3,
+// summed over groups when the table has groups), and the CJS model table
+// (group models too when every animal has a group label and there are at
+// least two groups), ranked by QAICc when c-hat > 1. cHat is the value
+// given with --c-hat, or 0 to take c-hat from the goodness-of-fit test
+// (its c-hat when above 1, else 1: the rule of GOF.SelectionCHat, which
+// the study report of the server follows too). It writes text, or one
+// JSON object when in.JSON.
 func estimateOpen(in *estimateInput, cHat float64, stdout io.Writer) error {
 	h := in.Histories
 	_, summary, err := open.FromHistories(h)
@@ -112,11 +136,30 @@ func estimateOpen(in *estimateInput, cHat float64, stdout io.Writer) error {
 		}
 		ms, groups = []open.MArray{m}, nil
 	}
+	var gof *open.GOF
+	var gofErr error
+	if len(ms) > 1 {
+		gof, _, gofErr = open.GoodnessOfFitByGroup(h)
+	} else {
+		gof, gofErr = open.GoodnessOfFit(h)
+	}
+	source := "--c-hat"
+	if cHat == 0 {
+		cHat, source = 1, "goodness of fit"
+		if gofErr == nil {
+			cHat = gof.SelectionCHat()
+		} else {
+			source = "none (the goodness-of-fit tests could not be run)"
+		}
+	}
 	tab, err := open.CJSTable(ms, groups, nil, cHat)
 	if err != nil {
 		return err
 	}
 	rep := openReport{
+		GOF:        gof,
+		CHat:       cHat,
+		CHatSource: source,
 		Source:     in.Source,
 		Notes:      in.Notes,
 		Animals:    h.Animals(),
@@ -131,6 +174,9 @@ func estimateOpen(in *estimateInput, cHat float64, stdout io.Writer) error {
 		},
 		Cautions: openCautions,
 	}
+	if gofErr != nil {
+		rep.GOFError = gofErr.Error()
+	}
 	for i := range summary.Caught {
 		rep.LostOnCatch += summary.Lost(i)
 	}
@@ -140,11 +186,15 @@ func estimateOpen(in *estimateInput, cHat float64, stdout io.Writer) error {
 			Name:     strings.TrimPrefix(r.Method, "CJS "),
 			LogLik:   r.LogLik,
 			Params:   r.Params,
-			AICc:     row.Criterion,
+			AICc:     r.AICc,
 			Delta:    row.Delta,
 			Weight:   row.Weight,
 			Boundary: r.Boundary,
 			Warnings: r.Warnings,
+		}
+		if tab.CriterionName != "AICc" {
+			q := row.Criterion
+			mod.QAICc = &q
 		}
 		for _, p := range r.Parameters {
 			switch {
@@ -193,6 +243,26 @@ func writeOpenText(w io.Writer, rep *openReport) error {
 		fmt.Fprintf(w, "  note: %s\n", s)
 	}
 
+	fmt.Fprintln(w, "\nGoodness of fit of the CJS model phi(t) p(t) (Burnham et al. 1987 component tests):")
+	if g := rep.GOF; g != nil {
+		tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+		for _, t := range []open.GOFTotal{g.SR, g.SM, g.CT, g.CL, g.Overall} {
+			if t.Components == 0 {
+				fmt.Fprintf(tw, "  %s\tnot testable (too few animals)\t\t\t\n", t.Name)
+				continue
+			}
+			fmt.Fprintf(tw, "  %s\tchi-square %.2f\t%d df\tP = %.3f\t\n", t.Name, t.ChiSquare, t.DF, t.P)
+		}
+		tw.Flush()
+		fmt.Fprintf(w, "  %s\n", g.Recommendation)
+		for _, s := range g.Warnings {
+			fmt.Fprintf(w, "  note: %s\n", s)
+		}
+	} else {
+		fmt.Fprintf(w, "  not run: %s\n", rep.GOFError)
+	}
+	fmt.Fprintf(w, "c-hat used for the model table: %.3f (from %s)\n", rep.CHat, rep.CHatSource)
+
 	cjs := rep.CJS
 	fmt.Fprintf(w, "\nCormack-Jolly-Seber models, ranked by %s (sample size: releases before the last occasion)\n", cjs.Criterion)
 	if len(cjs.Groups) > 0 {
@@ -205,7 +275,11 @@ func writeOpenText(w io.Writer, rep *openReport) error {
 		if m.Boundary {
 			flag = "  (boundary estimate)"
 		}
-		fmt.Fprintf(tw, "%s\t%d\t%.2f\t%.2f\t%.2f\t%.3f\t%s\n", m.Name, m.Params, -2*m.LogLik, m.AICc, m.Delta, m.Weight, flag)
+		crit := m.AICc
+		if m.QAICc != nil {
+			crit = *m.QAICc
+		}
+		fmt.Fprintf(tw, "%s\t%d\t%.2f\t%.2f\t%.2f\t%.3f\t%s\n", m.Name, m.Params, -2*m.LogLik, crit, m.Delta, m.Weight, flag)
 	}
 	if err := tw.Flush(); err != nil {
 		return err

@@ -149,3 +149,94 @@ func TestEstimateOpenBadInput(t *testing.T) {
 		}
 	}
 }
+
+// TestEstimateOpenGoodnessOfFit: the report carries TEST 2 + TEST 3 and
+// takes c-hat from it (its c-hat when above 1, else 1) unless --c-hat is
+// given, which then wins.
+func TestEstimateOpenGoodnessOfFit(t *testing.T) {
+	type report struct {
+		GOF *struct {
+			CHat    float64 `json:"c_hat"`
+			Overall struct {
+				ChiSquare float64 `json:"chi_square"`
+				DF        int     `json:"df"`
+			}
+		} `json:"goodness_of_fit"`
+		CHat       float64 `json:"c_hat"`
+		CHatSource string  `json:"c_hat_source"`
+		CJS        struct {
+			Criterion string `json:"criterion"`
+			Models    []struct {
+				Name   string   `json:"name"`
+				LogLik float64  `json:"loglik"`
+				Params int      `json:"params"`
+				AICc   float64  `json:"aicc"`
+				QAICc  *float64 `json:"qaicc"`
+			} `json:"models"`
+		} `json:"cjs"`
+	}
+	for _, grouped := range []bool{false, true} {
+		path := openHistoriesFile(t, openHistoriesCSV(grouped))
+		var out bytes.Buffer
+		if err := runEstimate([]string{"--open", "--json", "--histories", path}, &out); err != nil {
+			t.Fatal(err)
+		}
+		var rep report
+		if err := json.Unmarshal(out.Bytes(), &rep); err != nil {
+			t.Fatal(err)
+		}
+		if rep.GOF == nil || rep.GOF.Overall.DF == 0 {
+			t.Fatalf("grouped %v: no goodness of fit: %s", grouped, out.String())
+		}
+		if got := rep.GOF.Overall.ChiSquare / float64(rep.GOF.Overall.DF); got != rep.GOF.CHat {
+			t.Errorf("c-hat %g, chi-square/df %g", rep.GOF.CHat, got)
+		}
+		want := max(1, rep.GOF.CHat)
+		wantCrit := "AICc"
+		if want > 1 {
+			wantCrit = "QAICc"
+		}
+		if rep.CHat != want || rep.CHatSource != "goodness of fit" || rep.CJS.Criterion != wantCrit {
+			t.Errorf("grouped %v: c-hat %g from %q, criterion %s; want %g from the test, %s", grouped, rep.CHat, rep.CHatSource, rep.CJS.Criterion, want, wantCrit)
+		}
+		for _, m := range rep.CJS.Models {
+			if (m.QAICc != nil) != (want > 1) {
+				t.Errorf("grouped %v: %s qaicc %v with c-hat %g", grouped, m.Name, m.QAICc, want)
+			}
+		}
+		out.Reset()
+		if err := runEstimate([]string{"--open", "--json", "--c-hat", "2.5", "--histories", path}, &out); err != nil {
+			t.Fatal(err)
+		}
+		rep = report{}
+		if err := json.Unmarshal(out.Bytes(), &rep); err != nil {
+			t.Fatal(err)
+		}
+		if rep.CHat != 2.5 || rep.CHatSource != "--c-hat" || rep.CJS.Criterion != "QAICc" {
+			t.Errorf("--c-hat 2.5: c-hat %g from %q, criterion %s", rep.CHat, rep.CHatSource, rep.CJS.Criterion)
+		}
+		// aicc stays AICc; qaicc is added. Their difference follows from
+		// the two formulas (Burnham & Anderson 2002, sec. 2.5) for any
+		// sample size n: QAICc - AICc = (-2lnL)(1/c - 1) + 2 + [2(K+1)(K+2)/(n-K-2) - 2K(K+1)/(n-K-1)],
+		// the bracket positive and small here (n in the hundreds).
+		for _, m := range rep.CJS.Models {
+			if m.QAICc == nil {
+				t.Errorf("--c-hat 2.5: %s has no qaicc", m.Name)
+				continue
+			}
+			d := *m.QAICc - m.AICc - (-2*m.LogLik*(1/2.5-1) + 2)
+			if d <= 0 || d > 1 {
+				t.Errorf("%s: QAICc %.3f, AICc %.3f: small-sample terms differ by %.3f", m.Name, *m.QAICc, m.AICc, d)
+			}
+		}
+	}
+	var out bytes.Buffer
+	if err := runEstimate([]string{"--open", "--histories", openHistoriesFile(t, openHistoriesCSV(false))}, &out); err != nil {
+		t.Fatal(err)
+	}
+	for _, want := range []string{"Goodness of fit of the CJS model phi(t) p(t)", "TEST 3.SR", "TEST 2 + TEST 3", "c-hat used for the model table"} {
+		if !strings.Contains(out.String(), want) {
+			t.Errorf("text output lacks %q", want)
+		}
+	}
+}

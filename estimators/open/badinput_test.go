@@ -27,7 +27,8 @@ func TestOpenBadInputTable(t *testing.T) {
 	for _, c := range []struct {
 		name string
 		rows []string
-		// JS moments, CJS phi(.)p(.), CJS phi(t)p(t), JS likelihood, GOF.
+		// JS moments (both forms), CJS phi(.)p(.), CJS phi(t)p(t), JS
+		// likelihood, GOF.
 		js, cjs, cjst, jsml, gof want
 		sentinel                 error
 		jsNote                   string // part of the note JollySeber must give
@@ -99,6 +100,13 @@ func TestOpenBadInputTable(t *testing.T) {
 			if c.jsNote != "" {
 				noteHas("JollySeber", jsNotes, c.jsNote)
 			}
+
+			ju, err := JollySeberUnadjusted(s)
+			var juNotes []string
+			if err == nil {
+				juNotes = append(juNotes, ju.Warnings...)
+			}
+			check("JollySeberUnadjusted", c.js, ju, juNotes, false, err)
 
 			for _, cj := range []struct {
 				spec ModelSpec

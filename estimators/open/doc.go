@@ -15,6 +15,9 @@
 //     Seber 1965) in their bias-adjusted forms (Seber 1982; Pollock et
 //     al. 1990) of marked animals at risk, abundance, survival, recruits
 //     and capture probability per occasion, with standard errors.
+//     JollySeberUnadjusted gives Jolly's original estimates without the
+//     small-sample adjustment, the form printed in the older literature,
+//     for comparison with it.
 //   - CJS and CJSGroups fit Cormack-Jolly-Seber models by maximum
 //     likelihood from one m-array per group, so the cost depends on the
 //     number of occasions and not on the number of animals. CJSTable fits

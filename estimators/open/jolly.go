@@ -124,6 +124,29 @@ func (s Summary) Validate() error {
 // fewer than three occasions (ErrTooFewOccasions), no recaptures at all
 // (ErrNoRecaptures), an inconsistent summary (ErrInvalidInput).
 func JollySeber(s Summary) (*JollySeberResult, error) {
+	return jollySeber(s, true)
+}
+
+// JollySeberUnadjusted computes the original moment estimates of Jolly
+// (1965), without the +1 small-sample adjustments of JollySeber:
+//
+//	M_i = m_i + R_i z_i / r_i,   N_i = n_i M_i / m_i,
+//
+// with phi_i, B_i, p_i and every variance as for JollySeber. These are the
+// numbers printed in Jolly (1965) and in the tables that reproduce his
+// example, so this form is the one to use to compare with the older
+// literature; JollySeber is less biased in small samples (Seber 1982,
+// ch. 5) and is the one to report. Without the adjustment r_i = 0 with
+// z_i > 0 leaves M_i (and so N_i, p_i, phi_{i-1}, phi_i and the B's that
+// use them) inestimable, and m_i = 0 leaves N_i inestimable; each is
+// noted, never returned as NaN or Inf. Errors as for JollySeber.
+func JollySeberUnadjusted(s Summary) (*JollySeberResult, error) {
+	return jollySeber(s, false)
+}
+
+// jollySeber holds both forms: adjusted adds 1 to r_i, R_i, m_i and n_i in
+// the estimates of M_i and N_i.
+func jollySeber(s Summary, adjusted bool) (*JollySeberResult, error) {
 	if err := s.Validate(); err != nil {
 		return nil, fmt.Errorf("Jolly-Seber: %w", err)
 	}
@@ -175,28 +198,41 @@ func JollySeber(s Summary) (*JollySeberResult, error) {
 		o.Occasion = i + 1
 		o.Caught, o.Marked, o.Released, o.Recaptured, o.MissedAlive = s.Caught[i], s.Marked[i], s.Released[i], s.Recaptured[i], s.MissedAlive[i]
 	}
+	if !adjusted {
+		res.Method = "Jolly-Seber (original moment estimates of Jolly 1965, without the small-sample adjustment)"
+	}
 	note := func(i int, format string, a ...any) {
 		msg := fmt.Sprintf(format, a...)
 		res.Occasions[i].Notes = append(res.Occasions[i].Notes, msg)
 		res.Warnings = append(res.Warnings, fmt.Sprintf("occasion %d: %s", i+1, msg))
 	}
+	hasM[0] = true // M_1 = 0: nothing is marked before the first occasion
 	for i := 1; i < t-1; i++ {
-		M[i] = m(i) + (R(i)+1)*z(i)/(r(i)+1)
-		hasM[i] = true
-		switch {
-		case s.Released[i] == 0 && s.Caught[i] > 0:
-			note(i, "no animal was released here (all %d caught were lost on capture, R = 0): M and N rest on the small-sample adjustment alone and have no standard error", s.Caught[i])
-		case s.Recaptured[i] == 0:
-			note(i, "no animal released here was caught again (r = 0): M and N rest on the small-sample adjustment alone and have no standard error")
-		}
-		if M[i] > 0 {
-			N[i] = (n(i) + 1) * M[i] / (m(i) + 1)
-			hasN[i] = true
+		if !adjusted {
+			if !jollyUnadjustedM(s, i, M, N, hasM, hasN, note) {
+				continue
+			}
 		} else {
-			note(i, "no marked animal is known to be at risk (m = 0 and z = 0): N and p cannot be estimated")
+			M[i] = m(i) + (R(i)+1)*z(i)/(r(i)+1)
+			hasM[i] = true
+			switch {
+			case s.Released[i] == 0 && s.Caught[i] > 0:
+				note(i, "no animal was released here (all %d caught were lost on capture, R = 0): M and N rest on the small-sample adjustment alone and have no standard error", s.Caught[i])
+			case s.Recaptured[i] == 0:
+				note(i, "no animal released here was caught again (r = 0): M and N rest on the small-sample adjustment alone and have no standard error")
+			}
+			if M[i] > 0 {
+				N[i] = (n(i) + 1) * M[i] / (m(i) + 1)
+				hasN[i] = true
+			} else {
+				note(i, "no marked animal is known to be at risk (m = 0 and z = 0): N and p cannot be estimated")
+			}
 		}
 	}
 	for i := 1; i < t-1; i++ {
+		if !hasM[i] {
+			continue
+		}
 		o := &res.Occasions[i]
 		// M_i.
 		v := (M[i] - m(i)) * (M[i] - m(i) + R(i)) * inv[i]
@@ -233,8 +269,16 @@ func JollySeber(s Summary) (*JollySeberResult, error) {
 	phi := make([]float64, t)
 	hasPhi := make([]bool, t)
 	for i := 0; i < t-2; i++ {
+		if !hasM[i] || !hasM[i+1] {
+			missing := i + 1
+			if hasM[i] {
+				missing = i + 2
+			}
+			note(i, "M is not estimable on occasion %d: phi cannot be estimated", missing)
+			continue
+		}
 		at := M[i] - m(i) + R(i) // marked animals alive just after release on i
-		if !hasM[i+1] || at <= 0 {
+		if at <= 0 {
 			note(i, "no marked animal was released (M - m + R = 0): phi cannot be estimated")
 			continue
 		}
@@ -281,6 +325,38 @@ func JollySeber(s Summary) (*JollySeberResult, error) {
 		}
 	}
 	return res, nil
+}
+
+// jollyUnadjustedM sets M_i = m_i + R_i z_i / r_i and N_i = n_i M_i / m_i
+// (Jolly 1965) where they exist, with a note where they do not, and
+// reports whether M_i exists.
+func jollyUnadjustedM(s Summary, i int, M, N []float64, hasM, hasN []bool, note func(int, string, ...any)) bool {
+	n, m, R, r, z := float64(s.Caught[i]), float64(s.Marked[i]), float64(s.Released[i]), float64(s.Recaptured[i]), float64(s.MissedAlive[i])
+	switch {
+	case s.MissedAlive[i] == 0:
+		M[i] = m // no marked animal known to have been missed
+	case s.Recaptured[i] == 0:
+		switch {
+		case s.Caught[i] == 0:
+			note(i, "nothing was caught here (n = 0): without the small-sample adjustment M, N and p cannot be estimated")
+		case s.Released[i] == 0:
+			note(i, "no animal was released here (all %d caught were lost on capture, R = 0): without the small-sample adjustment M, N and p cannot be estimated", s.Caught[i])
+		default:
+			note(i, "no animal released here was caught again (r = 0): without the small-sample adjustment M, N and p cannot be estimated")
+		}
+		return false
+	default:
+		M[i] = m + R*z/r
+	}
+	hasM[i] = true
+	switch {
+	case s.Marked[i] == 0:
+		note(i, "no marked animal caught (m = 0): without the small-sample adjustment N and p cannot be estimated")
+	case M[i] > 0:
+		N[i] = n * M[i] / m
+		hasN[i] = true
+	}
+	return true
 }
 
 // value packs an estimate and its variance. A variance that is NaN, Inf
