@@ -22,6 +22,8 @@ type config struct {
 	// Host is the address to listen on; "" means every network interface,
 	// so phones on the camp Wi-Fi can connect.
 	Host string
+	// Peer is serve's scheduled sync with another server (serve_peer.go).
+	Peer peerSchedule
 }
 
 const (
@@ -87,6 +89,9 @@ func (c *config) validate() error {
 	}
 	if c.Host != "" && net.ParseIP(c.Host) == nil {
 		return fmt.Errorf("%w: --host %q is not an IP address of this machine", errUsage, c.Host)
+	}
+	if err := c.Peer.validate(); err != nil {
+		return err
 	}
 	if fi, err := os.Stat(c.Data); err == nil && fi.IsDir() {
 		return fmt.Errorf("%w: --data %s is a folder; give the path of a file, e.g. %s", errUsage, c.Data, filepath.Join(c.Data, "tagtally.db"))
