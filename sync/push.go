@@ -7,7 +7,6 @@ import (
 	"fmt"
 	"io"
 	"slices"
-	"strings"
 	stdsync "sync"
 	"unicode"
 
@@ -56,11 +55,11 @@ type PushBatch struct {
 // never panics on any input.
 //
 // How: one pass over the body finds where each revision's JSON begins and
-// ends (splitPush, which checks the push object's own syntax), then runs
-// of revisions are decoded by encoding/json's streaming decoder on all
-// cores (parallelChunks), which checks their syntax. Decoding is most of a
-// push's CPU time (about 2 ms for 500 revisions on one core,
-// PERFORMANCE.md).
+// ends (splitPush, which checks the push object's own syntax), then the
+// revisions are decoded on all cores (parallelChunks) by
+// decodeRevisionJSON, which checks their syntax. Decoding with
+// encoding/json alone was the largest part of a push's CPU time (about
+// 2 ms for 500 revisions on one core, PERFORMANCE.md).
 func DecodePush(r io.Reader) (*PushBatch, error) {
 	body, err := io.ReadAll(io.LimitReader(r, MaxPushBytes+1))
 	if err != nil {
@@ -83,22 +82,16 @@ func DecodePush(r io.Reader) (*PushBatch, error) {
 	)
 	if len(spans) > 0 {
 		parallelChunks(len(spans), func(lo, hi int) {
-			// A run is consecutive elements of one array (a repeated
-			// "revisions" member makes several).
-			for a := lo; a < hi; {
-				z := a + 1
-				for z < hi && spans[z].array == spans[a].array {
-					z++
-				}
-				if err := decodeRun(body[spans[a].start:spans[z-1].end], revs[a:z], errs[a:z]); err != nil {
+			for i := lo; i < hi; i++ {
+				var err error
+				if revs[i], errs[i], err = decodeRevisionJSON(body[spans[i].start:spans[i].end]); err != nil {
 					mu.Lock()
-					if a < first {
-						first, ferr = a, err
+					if i < first {
+						first, ferr = i, err
 					}
 					mu.Unlock()
 					return
 				}
-				a = z
 			}
 		})
 	}
@@ -126,37 +119,31 @@ func badPush(format string, args ...any) error {
 	return fmt.Errorf("sync: push: %w: body is not a push request: %s", ErrBadRevision, fmt.Sprintf(format, args...))
 }
 
-// decodeRun decodes len(revs) revisions from text, which is a run of
-// consecutive elements of the revisions array (with the commas between
-// them) as splitPush found them. A revision of the wrong shape gets its
-// error in errs; broken JSON (or a run that does not hold exactly
-// len(revs) values, which only broken JSON can cause) is returned, an
-// error for the whole body.
-func decodeRun(text []byte, revs []*capture.Capture, errs []error) error {
-	dec := json.NewDecoder(io.MultiReader(strings.NewReader("["), bytes.NewReader(text), strings.NewReader("]")))
-	if _, err := dec.Token(); err != nil {
-		return badPush("%v", err)
+// decodeRevisionJSON decodes one element of the revisions array as
+// splitPush found it: with decodeCaptureFast when it can, else with
+// encoding/json's streaming decoder, as the whole body used to be read. A
+// revision of the wrong shape gives a revision error (the revision is
+// rejected alone); broken JSON an error for the whole body.
+func decodeRevisionJSON(text []byte) (c *capture.Capture, revErr, bodyErr error) {
+	c = new(capture.Capture)
+	if decodeCaptureFast(text, c) {
+		return c, nil, nil
 	}
-	for i := range revs {
-		if !dec.More() {
-			return badPush("revisions are not valid JSON")
-		}
-		c := new(capture.Capture)
-		err := dec.Decode(c)
-		var syn *json.SyntaxError
-		switch {
-		case errors.As(err, &syn), errors.Is(err, io.ErrUnexpectedEOF), errors.Is(err, io.EOF):
-			return badPush("%v", err)
-		case err != nil:
-			errs[i] = err
-		default:
-			revs[i] = c
-		}
+	c = new(capture.Capture)
+	dec := json.NewDecoder(bytes.NewReader(text))
+	err := dec.Decode(c)
+	var syn *json.SyntaxError
+	switch {
+	case errors.As(err, &syn), errors.Is(err, io.ErrUnexpectedEOF), errors.Is(err, io.EOF):
+		return nil, nil, badPush("%v", err)
+	case dec.InputOffset() != int64(len(text)):
+		// More after one value (00, say): in the array that is a missing
+		// comma, broken JSON.
+		return nil, nil, badPush("revision is not one JSON value")
+	case err != nil:
+		return nil, err, nil
 	}
-	if dec.More() {
-		return badPush("revisions are not valid JSON")
-	}
-	return nil
+	return c, nil, nil
 }
 
 // span is where a revision is in a body, body[start:end], and which
