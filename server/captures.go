@@ -55,7 +55,7 @@ func (s *Server) createCapture(c echo.Context) error {
 	}
 	stored, fs, err := eng.Create(rec) // a revision in the body is ignored
 	if err != nil {
-		return syncError(err)
+		return err
 	}
 	c.Response().Header().Set(echo.HeaderLocation, c.Request().URL.Path+"/"+stored.ID)
 	return c.JSON(http.StatusCreated, captureAnswer{stored, orEmpty(fs)})
@@ -85,7 +85,7 @@ func (s *Server) updateCapture(c echo.Context) error {
 	}
 	stored, fs, err := eng.Update(rec)
 	if err != nil {
-		return syncError(err)
+		return err
 	}
 	return c.JSON(http.StatusOK, captureAnswer{stored, orEmpty(fs)})
 }
@@ -98,7 +98,7 @@ func (s *Server) deleteCapture(c echo.Context) error {
 		return err
 	}
 	if _, err := eng.Delete(c.Param("study"), c.Param("id")); err != nil {
-		return syncError(err)
+		return err
 	}
 	return c.NoContent(http.StatusNoContent)
 }

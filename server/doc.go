@@ -13,8 +13,10 @@
 //   - errors.go chooses every HTTP status in one place: capture.ErrInvalid
 //     (and *capture.ValidationError) is 422 with {"error", "field"},
 //     capture.ErrNotFound 404, capture.ErrConflict 409, a body over
-//     the limit 413, malformed JSON or unknown fields 400. Anything else is a
-//     500 whose details go to the log, never to the client.
+//     the limit 413, malformed JSON or unknown fields 400; sync's
+//     sentinels: a push too large 413, a bad cursor or revision 400, stale
+//     leaves or a missing parent 409, a failing peer 502. Anything else is
+//     a 500 whose details go to the log, never to the client.
 //   - server.go wires echo to an http.Server with header, read, write and
 //     idle timeouts and a body-size limit, and shuts down gracefully:
 //     when the context given to Serve ends, the listener closes, requests

@@ -9,6 +9,7 @@ import (
 	"github.com/labstack/echo/v4"
 
 	"tagtally/capture"
+	tsync "tagtally/sync"
 )
 
 // errorBody is the JSON body of every error answer. Field names the JSON
@@ -45,6 +46,17 @@ func status(err error) (int, errorBody) {
 		return http.StatusRequestEntityTooLarge, errorBody{Error: fmt.Sprintf("request body is larger than the limit of %d bytes", mbe.Limit)}
 	case errors.As(err, &re):
 		return http.StatusBadRequest, errorBody{Error: re.msg, Field: re.field}
+	// Sync's sentinels come before the store's: a sync error names the
+	// revision or cursor at fault.
+	case errors.Is(err, tsync.ErrTooLarge):
+		return http.StatusRequestEntityTooLarge, errorBody{Error: err.Error()}
+	case errors.Is(err, tsync.ErrBadCursor), errors.Is(err, tsync.ErrBadRevision):
+		return http.StatusBadRequest, errorBody{Error: err.Error()}
+	case errors.Is(err, tsync.ErrStaleLeaves), errors.Is(err, tsync.ErrMissingParent):
+		return http.StatusConflict, errorBody{Error: err.Error()}
+	case errors.Is(err, tsync.ErrPeer):
+		// The peer's answer goes to the log, not to the client.
+		return http.StatusBadGateway, errorBody{Error: http.StatusText(http.StatusBadGateway)}
 	case errors.As(err, &ve):
 		return http.StatusUnprocessableEntity, errorBody{Error: ve.Message, Field: ve.Field}
 	case errors.Is(err, capture.ErrInvalid):

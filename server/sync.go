@@ -1,7 +1,6 @@
 package server
 
 import (
-	"errors"
 	"net"
 	"net/http"
 	"strconv"
@@ -48,19 +47,6 @@ func (s *Server) engine() (*tsync.Engine, error) {
 // of `tagtally serve`.
 func (s *Server) SyncEngine() (*tsync.Engine, error) { return s.engine() }
 
-// syncError turns sync's sentinels into answers the error handler knows.
-func syncError(err error) error {
-	switch {
-	case errors.Is(err, tsync.ErrTooLarge):
-		return echo.NewHTTPError(http.StatusRequestEntityTooLarge, err.Error())
-	case errors.Is(err, tsync.ErrBadCursor), errors.Is(err, tsync.ErrBadRevision):
-		return badRequest("", "%v", err)
-	case errors.Is(err, tsync.ErrStaleLeaves), errors.Is(err, tsync.ErrMissingParent):
-		return echo.NewHTTPError(http.StatusConflict, err.Error())
-	}
-	return err
-}
-
 // syncInfo answers GET /api/v1/sync: this replica's ID and feed epoch.
 func (s *Server) syncInfo(c echo.Context) error {
 	eng, err := s.engine()
@@ -78,13 +64,9 @@ func (s *Server) syncPush(c echo.Context) error {
 	if err != nil {
 		return err
 	}
-	batch, err := tsync.DecodePush(c.Request().Body)
+	batch, err := tsync.DecodePush(c.Request().Body) // a body over the limit wraps *http.MaxBytesError
 	if err != nil {
-		var mbe *http.MaxBytesError
-		if errors.As(err, &mbe) {
-			return mbe
-		}
-		return syncError(err)
+		return err
 	}
 	reply, err := eng.Push(batch)
 	if err != nil {
@@ -115,7 +97,7 @@ func (s *Server) syncPull(c echo.Context) error {
 	}
 	page, err := eng.Pull(req)
 	if err != nil {
-		return syncError(err)
+		return err
 	}
 	return c.JSON(http.StatusOK, page)
 }
@@ -175,7 +157,7 @@ func (s *Server) resolveCapture(c echo.Context) error {
 	}
 	rec, fs, err := eng.Resolve(c.Param("study"), c.Param("id"), body, req.Leaves)
 	if err != nil {
-		return syncError(err)
+		return err
 	}
 	return c.JSON(http.StatusOK, captureAnswer{rec, orEmpty(fs)})
 }
@@ -212,10 +194,7 @@ func (s *Server) syncWithPeer(c echo.Context) error {
 	}
 	rep, err := eng.SyncPeer(c.Request().Context(), tsync.Peer{URL: req.URL, Token: req.Token, Study: req.Study, PageSize: req.PageSize})
 	if err != nil {
-		if errors.Is(err, tsync.ErrPeer) {
-			return echo.NewHTTPError(http.StatusBadGateway, err.Error())
-		}
-		return err
+		return err // tsync.ErrPeer: 502
 	}
 	return c.JSON(http.StatusOK, rep)
 }

@@ -225,17 +225,32 @@ func (e *Engine) ApplyRemote(revs []*capture.Capture, source string) ([]Result, 
 func (e *Engine) apply(revs []*capture.Capture, source string, useBatch bool, extra func(t txn, res []Result) error) ([]Result, error) {
 	pre := make([]Result, len(revs))
 	bodies := make([][]byte, len(revs))
-	for i, c := range revs {
+	check := func(i int) {
+		c := revs[i]
 		if c == nil {
 			pre[i] = Result{Status: StatusRejected, Reason: ErrBadRevision.Error() + ": empty"}
-			continue
+			return
 		}
 		body, err := checkRevision(c)
 		if err != nil {
 			pre[i] = Result{CaptureID: c.ID, Revision: c.Revision.ID, Status: StatusRejected, Reason: err.Error()}
-			continue
+			return
 		}
 		bodies[i] = body
+	}
+	// checkRevision fills in c's ID: on all cores only when no revision
+	// is given twice (the same pointer), else one after another.
+	if distinct(revs) {
+		parallel(len(revs), check)
+	} else {
+		for i := range revs {
+			check(i)
+		}
+	}
+	for i, c := range revs {
+		if bodies[i] == nil {
+			continue
+		}
 		st, _ := ParseStamp(c.Revision.Stamp) // checked above
 		if ahead := e.clock.Observe(st); ahead > 0 {
 			pre[i].Warning = fmt.Sprintf("stamp is %s ahead of this server's clock: kept as given for ordering, but the server clock did not follow it; check the device's clock", ahead.Round(time.Minute))
@@ -277,6 +292,18 @@ func (e *Engine) apply(revs []*capture.Capture, source string, useBatch bool, ex
 	}
 	e.noteSeq(last)
 	return out, nil
+}
+
+// distinct reports whether no revision appears twice in revs (nil aside).
+func distinct(revs []*capture.Capture) bool {
+	seen := make(map[*capture.Capture]bool, len(revs))
+	for _, c := range revs {
+		if c != nil && seen[c] {
+			return false
+		}
+		seen[c] = true
+	}
+	return true
 }
 
 // SourceRecord is the receiving end's checkpoint for one sender, written

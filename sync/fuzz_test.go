@@ -7,8 +7,9 @@ import (
 )
 
 // FuzzDecodePush feeds arbitrary bodies to the push decoder and then to
-// the merge. Nothing may panic; every revision gets exactly one result;
-// the seed corpus runs in every `go test`. For a short fuzz run in CI:
+// the merge. Nothing may panic; the decoder decides every body as the
+// reference decoder does (push_test.go); every revision gets exactly one
+// result; the seed corpus runs in every `go test`. For a short fuzz run in CI:
 //
 //	go test ./sync -run '^$' -fuzz FuzzDecodePush -fuzztime 10s
 func FuzzDecodePush(f *testing.F) {
@@ -27,6 +28,7 @@ func FuzzDecodePush(f *testing.F) {
 		f.Add([]byte(s))
 	}
 	f.Fuzz(func(t *testing.T, data []byte) {
+		sameDecode(t, data)
 		b, err := DecodePush(strings.NewReader(string(data)))
 		if err != nil {
 			return

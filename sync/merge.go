@@ -30,6 +30,7 @@ type txn interface {
 	forEachRevision(captureID string, fn func(val []byte) error) error
 	// current is the record as the capture store holds it (the winner).
 	current(studyID, captureID string) (*capture.Capture, error)
+	// putCurrent writes c to the capture store, keeping nothing of c.
 	putCurrent(c *capture.Capture) error
 	// forEachCapture visits every record of a study in the capture store.
 	forEachCapture(studyID string, fn func(c *capture.Capture) error) error
@@ -181,24 +182,43 @@ func merge(t txn, c *capture.Capture, body []byte, source string) (Result, error
 		return res, nil
 	}
 	cid, rid := c.ID, c.Revision.ID
-	if val, ok, err := t.revision(cid, rid); err != nil {
-		return res, err
-	} else if ok {
-		res.Status = StatusAlreadyHad
-		h, err := revHeader(val)
-		if err != nil {
-			return res, fmt.Errorf("revision %s of %s: %w", rid, cid, err)
-		}
-		if !stampLess(c.Revision.Stamp, c.Revision.Device, h.stamp, h.device) {
-			rs, _, err := t.record(cid)
-			res.Conflict = len(rs.leaves) > 1
-			return res, err
-		}
-		return res, lowerStamp(t, cid, rid, val, c.Revision.Stamp, c.Revision.Device, source, &res)
-	}
+	// The record state first: a revision and its record's state are
+	// stored in one transaction, so a record unknown here has none of its
+	// revisions stored (no lookup needed), and a revision that is one of
+	// the leaves is known from the state alone (a re-sent edit, the
+	// common case of a re-push).
 	rs, exists, err := t.record(cid)
 	if err != nil {
 		return res, err
+	}
+	if exists {
+		have, val := false, []byte(nil)
+		var h leaf
+		if i := slices.IndexFunc(rs.leaves, func(l leaf) bool { return l.id == rid }); i >= 0 {
+			have, h = true, rs.leaves[i]
+		} else if val, have, err = t.revision(cid, rid); err != nil {
+			return res, err
+		} else if have {
+			if h, err = revHeader(val); err != nil {
+				return res, fmt.Errorf("revision %s of %s: %w", rid, cid, err)
+			}
+		}
+		if have {
+			res.Status = StatusAlreadyHad
+			res.Conflict = len(rs.leaves) > 1
+			if !stampLess(c.Revision.Stamp, c.Revision.Device, h.stamp, h.device) {
+				return res, nil
+			}
+			if val == nil {
+				if val, have, err = t.revision(cid, rid); err != nil || !have {
+					if err == nil {
+						err = fmt.Errorf("record %s: leaf %s: %w", cid, rid, errCorrupt)
+					}
+					return res, err
+				}
+			}
+			return res, lowerStamp(t, cid, rid, val, c.Revision.Stamp, c.Revision.Device, source, rs, &res)
+		}
 	}
 	if exists && rs.study != c.StudyID {
 		return reject(fmt.Errorf("%w: record %s belongs to study %q, not %q", ErrStudyChanged, cid, rs.study, c.StudyID), false)
@@ -258,18 +278,15 @@ func merge(t txn, c *capture.Capture, body []byte, source string) (Result, error
 	return res, nil
 }
 
-// lowerStamp replaces a stored revision's stamp by a smaller one.
-func lowerStamp(t txn, cid, rid string, val []byte, stamp, device, source string, res *Result) error {
+// lowerStamp replaces a stored revision's stamp by a smaller one; rs is
+// its record's state.
+func lowerStamp(t txn, cid, rid string, val []byte, stamp, device, source string, rs recordState, res *Result) error {
 	r, body, err := decodeStored(val)
 	if err != nil {
 		return fmt.Errorf("revision %s of %s: %w", rid, cid, err)
 	}
 	r.Stamp, r.Device = stamp, device
 	if err := t.putRevision(cid, rid, encodeRevision(&capture.Capture{Revision: r}, body)); err != nil {
-		return err
-	}
-	rs, _, err := t.record(cid)
-	if err != nil {
 		return err
 	}
 	for i := range rs.leaves {
@@ -293,31 +310,35 @@ func lowerStamp(t txn, cid, rid string, val []byte, stamp, device, source string
 func setCurrent(t txn, cid string, rs recordState, fresh *capture.Capture) error {
 	w := rs.leaves[winner(rs.leaves)]
 	conflict := len(rs.leaves) > 1
-	var cur *capture.Capture
 	if fresh != nil && fresh.Revision.ID == w.id {
-		cur = cloneCapture(fresh)
-	} else {
-		old, err := t.current(rs.study, cid)
-		switch {
-		case err == nil && old.Revision.ID == w.id:
-			if old.Revision.Conflict == conflict && old.Revision.Stamp == w.stamp && old.Revision.Device == w.device {
-				return nil
-			}
-			cur = old
-		case err == nil || errors.Is(err, capture.ErrNotFound):
-			val, ok, err := t.revision(cid, w.id)
-			if err != nil {
-				return err
-			}
-			if !ok {
-				return fmt.Errorf("record %s: leaf %s: %w", cid, w.id, errCorrupt)
-			}
-			if cur, err = decodeRevision(val); err != nil {
-				return err
-			}
-		default:
+		// The new revision is the winner as it stands (same stamp); only
+		// its Conflict flag differs, set just for the write (putCurrent
+		// keeps nothing of it), saving a copy per stored revision.
+		was := fresh.Revision.Conflict
+		fresh.Revision.Conflict = conflict
+		err := t.putCurrent(fresh)
+		fresh.Revision.Conflict = was
+		return err
+	}
+	cur, err := t.current(rs.study, cid)
+	switch {
+	case err == nil && cur.Revision.ID == w.id:
+		if cur.Revision.Conflict == conflict && cur.Revision.Stamp == w.stamp && cur.Revision.Device == w.device {
+			return nil
+		}
+	case err == nil || errors.Is(err, capture.ErrNotFound):
+		val, ok, err := t.revision(cid, w.id)
+		if err != nil {
 			return err
 		}
+		if !ok {
+			return fmt.Errorf("record %s: leaf %s: %w", cid, w.id, errCorrupt)
+		}
+		if cur, err = decodeRevision(val); err != nil {
+			return err
+		}
+	default:
+		return err
 	}
 	cur.Revision.Stamp, cur.Revision.Device = w.stamp, w.device
 	cur.Revision.Conflict = conflict

@@ -50,6 +50,7 @@ func runServe(args []string, stdout io.Writer) error {
 	cfg.addPortFlag(fs, "the port to listen on; phones use it in the address")
 	cfg.addTLSFlags(fs)
 	fs.StringVar(&cfg.Host, "host", "", "listen only on this IP address (e.g. 127.0.0.1 for this computer only); empty means every network interface")
+	cfg.Peer.addFlags(fs)
 	withDemo := fs.Bool("demo", false, "add the invented demonstration study to the data file before serving (safe to repeat)")
 	if err := parseArgs(fs, args, 0); err != nil {
 		return err
@@ -90,6 +91,11 @@ func serve(ctx context.Context, cfg config, withDemo bool, stdout io.Writer) (er
 	if err != nil {
 		return err
 	}
+	stopPeerSync, err := cfg.Peer.start(ctx, srv)
+	if err != nil {
+		return err
+	}
+	defer stopPeerSync() // before the store closes
 	ln, err := net.Listen("tcp", scfg.Addr)
 	if err != nil {
 		return fmt.Errorf("cannot listen on port %d: %w (is another server using it? try --port)", cfg.Port, err)

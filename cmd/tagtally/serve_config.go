@@ -32,6 +32,8 @@ type config struct {
 	TLSCert, TLSKey string
 	// NoTLS serves plain HTTP only (phones then cannot work offline).
 	NoTLS bool
+	// Peer is serve's scheduled sync with another server (serve_peer.go).
+	Peer peerSchedule
 }
 
 const (
@@ -138,6 +140,9 @@ func (c *config) validate() error {
 	}
 	if c.Host != "" && net.ParseIP(c.Host) == nil {
 		return fmt.Errorf("%w: --host %q is not an IP address of this machine", errUsage, c.Host)
+	}
+	if err := c.Peer.validate(); err != nil {
+		return err
 	}
 	if fi, err := os.Stat(c.Data); err == nil && fi.IsDir() {
 		return fmt.Errorf("%w: --data %s is a folder; give the path of a file, e.g. %s", errUsage, c.Data, filepath.Join(c.Data, "tagtally.db"))

@@ -11,7 +11,6 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
-	"slices"
 	"strings"
 	"sync"
 	"syscall"
@@ -455,9 +454,10 @@ func TestSyncCrashDuringPushes(t *testing.T) {
 
 // checkpointsBehindData opens a data file after its sync process was
 // killed and checks that its checkpoints for the peer are not ahead of the
-// data: everything the pull cursor covers is here, everything the push
-// checkpoint covers is at the peer.
-func checkpointsBehindData(t *testing.T, data, peer string, peerFeed map[string]capture.Capture) {
+// data: everything the push checkpoint covers is at the peer (peerFeed),
+// everything the pull cursor covers is here. It pages through both feeds,
+// however long they are, and returns the checkpoint.
+func checkpointsBehindData(t *testing.T, data, peer string, peerFeed map[string]capture.Capture) tsync.PeerCheckpoint {
 	t.Helper()
 	s, err := capture.Open(data, nil)
 	if err != nil {
@@ -476,29 +476,47 @@ func checkpointsBehindData(t *testing.T, data, peer string, peerFeed map[string]
 	if err != nil {
 		t.Fatal(err)
 	}
-	if cp.LocalEpoch == e.Epoch() && cp.Pushed > 0 {
-		page, err := e.Pull(tsync.PullRequest{Cursor: tsync.FormatCursor(e.Epoch(), 0), Limit: int(cp.Pushed), SkipSource: cp.PeerReplica})
+	// Every revision here, and the first cp.Pushed entries of this feed.
+	// Without a filter each feed entry is one revision, so a page limited
+	// to the entries left ends exactly at the checkpoint.
+	here := map[string]bool{}
+	pushed := 0
+	for cursor, seq := tsync.FormatCursor(e.Epoch(), 0), uint64(0); ; {
+		page, err := e.Pull(tsync.PullRequest{Cursor: cursor, Limit: tsync.MaxPullLimit})
 		if err != nil {
 			t.Fatal(err)
 		}
 		for _, raw := range page.Revisions {
 			var c capture.Capture
-			json.Unmarshal(raw, &c)
-			if _, ok := peerFeed[c.Revision.ID]; !ok {
-				t.Fatalf("push checkpoint %d covers revision %s, which the peer does not have", cp.Pushed, c.Revision.ID)
+			if err := json.Unmarshal(raw, &c); err != nil {
+				t.Fatal(err)
+			}
+			here[c.Revision.ID] = true
+			seq++
+			if cp.LocalEpoch == e.Epoch() && seq <= cp.Pushed {
+				pushed++
+				if _, ok := peerFeed[c.Revision.ID]; !ok {
+					t.Fatalf("push checkpoint %d covers revision %s (feed entry %d), which the peer does not have", cp.Pushed, c.Revision.ID, seq)
+				}
 			}
 		}
+		cursor = page.Next
+		if !page.More {
+			break
+		}
 	}
+	if cp.LocalEpoch == e.Epoch() && uint64(pushed) != cp.Pushed {
+		t.Fatalf("push checkpoint %d is beyond this feed's %d entries", cp.Pushed, pushed)
+	}
+	// The first entries of the peer's feed, up to the pull cursor.
+	var pulled uint64
 	if cp.Pulled != "" {
-		_, seq, err := tsync.ParseCursor(cp.Pulled)
-		if err != nil {
+		if _, pulled, err = tsync.ParseCursor(cp.Pulled); err != nil {
 			t.Fatal(err)
 		}
-		if seq == 0 {
-			return
-		}
-		// The first seq entries of the peer's feed: all must be here.
-		resp, err := http.Get(fmt.Sprintf("%s/api/v1/sync/pull?limit=%d&skip_source=%s", peer, seq, e.Replica()))
+	}
+	for cursor, seq := "", uint64(0); seq < pulled; {
+		resp, err := http.Get(fmt.Sprintf("%s/api/v1/sync/pull?limit=%d&cursor=%s", peer, min(pulled-seq, tsync.MaxPullLimit), cursor))
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -508,16 +526,26 @@ func checkpointsBehindData(t *testing.T, data, peer string, peerFeed map[string]
 		if err != nil {
 			t.Fatal(err)
 		}
+		if page.Epoch != cp.PeerEpoch {
+			t.Fatalf("the peer's epoch is %s, the pull cursor's %s", page.Epoch, cp.PeerEpoch)
+		}
 		for _, raw := range page.Revisions {
 			var c capture.Capture
-			json.Unmarshal(raw, &c)
-			h, err := e.History(c.StudyID, c.ID)
-			if err != nil || !slices.ContainsFunc(h.Revisions, func(r capture.Capture) bool { return r.Revision.ID == c.Revision.ID }) {
-				t.Fatalf("pull cursor at %d covers revision %s, which is not here", seq, c.Revision.ID)
+			if err := json.Unmarshal(raw, &c); err != nil {
+				t.Fatal(err)
+			}
+			seq++
+			if !here[c.Revision.ID] {
+				t.Fatalf("pull cursor at %d covers revision %s (peer feed entry %d), which is not here", pulled, c.Revision.ID, seq)
 			}
 		}
-		t.Logf("pull cursor at %d, push checkpoint at %d: both covered by data", seq, cp.Pushed)
+		if !page.More && seq < pulled {
+			t.Fatalf("pull cursor at %d is beyond the peer's %d feed entries", pulled, seq)
+		}
+		cursor = page.Next
 	}
+	t.Logf("pull cursor at %d, push checkpoint at %d: both covered by data", pulled, cp.Pushed)
+	return cp
 }
 
 // A peer sync killed between a committed push (confirmed by the peer) and
