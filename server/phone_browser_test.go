@@ -1,0 +1,564 @@
+package server
+
+import (
+	"context"
+	"fmt"
+	"io"
+	"io/fs"
+	"log/slog"
+	"net"
+	"regexp"
+	"slices"
+	"sort"
+	"strings"
+	"testing"
+	"time"
+
+	cdpbrowser "github.com/chromedp/cdproto/browser"
+	"github.com/chromedp/cdproto/emulation"
+	"github.com/chromedp/chromedp"
+	"github.com/chromedp/chromedp/kb"
+
+	"tagtally/capture"
+	"tagtally/capture/storetest"
+	"tagtally/pwa"
+)
+
+// The phone app's browser tests. The camp server listens on one loopback
+// address that the test stops and starts again: a phone out of reach of
+// the camp is a phone whose requests find no server. Page-level network
+// emulation would not do, because it does not cover the service worker.
+// http://127.0.0.1 is a secure context, so the service worker runs
+// without HTTPS.
+
+// phoneServer is a Server over a throw-away store holding phoneStudy,
+// served on the same loopback address across stops and starts.
+type phoneServer struct {
+	t     *testing.T
+	srv   *Server
+	store *capture.Store
+	study *capture.Study
+	addr  string
+	stop  func() // nil while stopped
+}
+
+func newPhoneServer(t *testing.T) *phoneServer {
+	t.Helper()
+	store := storetest.Open(t)
+	st := phoneStudy(time.Now())
+	if err := store.CreateStudy(st); err != nil {
+		t.Fatal(err)
+	}
+	// A free port, chosen once: the phone knows the camp server by its
+	// address, so it must come back on the same one.
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	addr := ln.Addr().String()
+	if err := ln.Close(); err != nil {
+		t.Fatal(err)
+	}
+	cfg := DefaultConfig()
+	cfg.Addr = addr
+	cfg.ShutdownTimeout = 3 * time.Second
+	cfg.Logger = slog.New(slog.NewTextHandler(io.Discard, nil))
+	srv, err := New(store, cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ps := &phoneServer{t: t, srv: srv, store: store, study: st, addr: addr}
+	ps.start()
+	t.Cleanup(func() {
+		if ps.stop != nil {
+			ps.stop()
+		}
+	})
+	return ps
+}
+
+func (ps *phoneServer) url() string { return "http://" + ps.addr }
+
+// start serves on the server's address until stop is called.
+func (ps *phoneServer) start() {
+	ps.t.Helper()
+	ln, err := net.Listen("tcp", ps.addr)
+	if err != nil {
+		ps.t.Fatalf("the camp server cannot listen on %s again: %v", ps.addr, err)
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() { done <- ps.srv.Serve(ctx, ln) }()
+	ps.stop = func() {
+		ps.stop = nil
+		cancel()
+		if err := <-done; err != nil {
+			ps.t.Errorf("stopping the camp server: %v", err)
+		}
+	}
+}
+
+// phoneStudy is an invented live-trapping grid whose third daily occasion
+// window holds now, so records made during the test belong to an
+// occasion. Its stations have coordinates, so the app can offer the
+// nearest one first.
+func phoneStudy(now time.Time) *capture.Study {
+	st := storetest.Study()
+	st.ID = "carrow-heath-2026"
+	st.Name = "Carrow Heath grid"
+	st.TargetSpecies = []string{"bank vole", "wood mouse"}
+	st.Measurements = []capture.MeasurementSpec{{Name: "hind foot", Unit: "mm"}}
+	st.PermitRef = "CH-2026-07 (invented)"
+	base := now.Add(-49 * time.Hour).Truncate(time.Second)
+	st.CreatedAt = base.Add(-24 * time.Hour)
+	for i := range st.Occasions {
+		s := base.Add(time.Duration(i) * 24 * time.Hour)
+		st.Occasions[i].Start, st.Occasions[i].End = s, s.Add(23*time.Hour)
+	}
+	for i := range st.Stations {
+		lat, lon := 52.6100+0.0003*float64(i/2), 1.3500+0.0005*float64(i%2)
+		st.Stations[i].Lat, st.Stations[i].Lon = &lat, &lon
+	}
+	return st
+}
+
+// phone is one phone: a browser on its own profile with the app open.
+type phone struct {
+	page
+	base string
+}
+
+// openPhone starts a browser on profile with a width x height phone
+// screen (mobile emulation), allows it the GPS position pos (lat, lon)
+// and opens the app at base.
+func openPhone(t *testing.T, profile, base string, width, height int64, pos [2]float64) phone {
+	t.Helper()
+	p := phone{page: page{t: t, ctx: browserWithProfile(t, profile), dir: screenshotDir(t)}, base: base}
+	p.page.do(chromedp.EmulateViewport(width, height, chromedp.EmulateMobile, chromedp.EmulatePortrait))
+	if _, err := chromedp.CallBrowser(p.ctx, cdpbrowser.SetPermission, cdpbrowser.SetPermissionParams{
+		Permission: &cdpbrowser.PermissionDescriptor{Name: "geolocation"}, Setting: cdpbrowser.PermissionSettingGranted, Origin: base,
+	}); err != nil {
+		t.Fatalf("granting the GPS position: %v", err)
+	}
+	acc := 6.0
+	if _, err := chromedp.Call(p.ctx, emulation.SetGeolocationOverride, emulation.SetGeolocationOverrideParams{
+		Latitude: &pos[0], Longitude: &pos[1], Accuracy: &acc,
+	}); err != nil {
+		t.Fatalf("setting the GPS position: %v", err)
+	}
+	p.do(chromedp.Navigate(base + "/"))
+	return p
+}
+
+// do runs steps with a time limit, and on failure says what the page
+// shows. (The browser's lifetime is bound to the context of its first
+// action, which openPhone runs without this limit.)
+func (p phone) do(steps ...chromedp.Action[chromedp.Void]) {
+	p.t.Helper()
+	ctx, cancel := context.WithTimeout(p.ctx, 20*time.Second)
+	defer cancel()
+	if err := chromedp.Do(ctx, steps...); err != nil {
+		body, _ := chromedp.Run(p.ctx, chromedp.Evaluate[string](`document.body ? document.body.innerText : ""`))
+		p.t.Fatalf("%v\npage shows:\n%s", err, body)
+	}
+}
+
+// close closes the whole browser, as when the crew closes the app or the
+// phone switches off; the profile folder keeps what the browser stored.
+func (p phone) close() {
+	p.t.Helper()
+	if err := chromedp.Cancel(p.ctx); err != nil {
+		p.t.Fatalf("closing the browser: %v", err)
+	}
+}
+
+// wait polls the page until expr is true, failing the test after 20 s with
+// what the page shows.
+func (p phone) wait(expr string) {
+	p.t.Helper()
+	_, err := chromedp.Run(p.ctx, chromedp.Poll[bool](expr, chromedp.WithPollingInterval(50*time.Millisecond), chromedp.WithPollingTimeout(20*time.Second)))
+	if err != nil {
+		body, _ := chromedp.Run(p.ctx, chromedp.Evaluate[string](`document.body ? document.body.innerText : ""`))
+		p.t.Fatalf("waiting for %s: %v\npage shows:\n%s", expr, err, body)
+	}
+}
+
+// await evaluates expr, waiting for the promise it gives.
+func await[T any](p phone, expr string) T {
+	p.t.Helper()
+	v, err := chromedp.Run(p.ctx, chromedp.Evaluate[T](expr, chromedp.EvalAwaitPromise))
+	if err != nil {
+		p.t.Fatalf("%s: %v", expr, err)
+	}
+	return v
+}
+
+// join chooses the only study on the camp server, gives the crew member's
+// initials and accepts the handling cautions.
+func (p phone) join(observer string) {
+	p.t.Helper()
+	p.wait(`document.querySelector("#study-list button") !== null`)
+	p.do(chromedp.SendKeys(chromedp.ID("observer"), observer))
+	p.click("#study-list button")
+	p.wait(`!document.getElementById("screen-cautions").hidden`)
+	if text := p.text("#screen-cautions"); !strings.Contains(text, "permits") || !strings.Contains(text, "CH-2026-07") {
+		p.t.Errorf("cautions screen does not show the permit cautions and the study's permit: %q", text)
+	}
+	p.click("#accept-cautions")
+	p.wait(`!document.getElementById("screen-record").hidden`)
+}
+
+// waitServiceWorker waits until the service worker controls the page and
+// its cache holds every file of the shell.
+func (p phone) waitServiceWorker() {
+	p.t.Helper()
+	p.wait(`navigator.serviceWorker.controller !== null && navigator.serviceWorker.controller.state === "activated"`)
+	cached := await[[]string](p, `caches.keys()
+		.then((ks) => caches.open(ks.find((k) => k.startsWith("tagtally-shell-"))))
+		.then((c) => c.keys()).then((rs) => rs.map((r) => new URL(r.url).pathname))`)
+	sort.Strings(cached)
+	if want := shellFiles(p.t); !slices.Equal(cached, want) {
+		p.t.Fatalf("service worker cache holds %v, want the shell %v", cached, want)
+	}
+}
+
+// shellFiles is the service worker's list of shell files, sorted.
+func shellFiles(t *testing.T) []string {
+	t.Helper()
+	sw, err := fs.ReadFile(pwa.Files(), "sw.js")
+	if err != nil {
+		t.Fatal(err)
+	}
+	list := regexp.MustCompile(`(?s)const SHELL = \[(.*?)\];`).FindSubmatch(sw)
+	if list == nil {
+		t.Fatal("sw.js has no SHELL list")
+	}
+	var out []string
+	for _, m := range regexp.MustCompile(`"(/[^"]*)"`).FindAllSubmatch(list[1], -1) {
+		out = append(out, string(m[1]))
+	}
+	sort.Strings(out)
+	return out
+}
+
+// entry is one capture as the crew enters it on the form.
+type entry struct {
+	tag     string
+	pick    string // typed instead of tag: the tag is then chosen from the type-ahead suggestions
+	event   string // tapped; "" keeps what the app chose from the tag
+	oldTag  string // for a retag
+	status  string // what the app must say about the tag: new, recapture, dead, unmarked
+	species string // chosen on the species list; "" keeps the last one
+	station string // station ID chosen on the station list; "" keeps the last one
+	sex     string
+	age     string
+	mass    string
+	foot    string // hind foot, mm
+	notes   string
+}
+
+// record enters e through the form, saves it and waits until the outbox
+// holds n records.
+func (p phone) record(e entry, n int) {
+	p.t.Helper()
+	if e.pick != "" {
+		p.do(chromedp.SendKeys(chromedp.ID("tag"), e.pick))
+		find := fmt.Sprintf(`Array.from(document.querySelectorAll("#tag-suggestions button"), (b) => b.textContent).indexOf(%q)`, e.tag)
+		p.wait(find + ` >= 0`)
+		p.click(fmt.Sprintf(`#tag-suggestions button:nth-child(%d)`, evalAs[int](p.page, find)+1))
+	} else {
+		p.do(chromedp.SendKeys(chromedp.ID("tag"), e.tag))
+	}
+	p.wait(fmt.Sprintf(`document.getElementById("tag").value === %q && document.getElementById("tag-status").classList.contains(%q)`, e.tag, e.status))
+	if e.event != "" {
+		p.tap("event", e.event)
+	}
+	if e.event == "retag" {
+		p.do(chromedp.WaitVisible(chromedp.ID("old-tag")), chromedp.SendKeys(chromedp.ID("old-tag"), e.oldTag))
+	}
+	if e.species != "" {
+		p.choose("species", e.species)
+	}
+	if e.station != "" {
+		p.choose("station", e.station)
+	}
+	if e.sex != "" {
+		p.tap("sex", e.sex)
+	}
+	if e.age != "" {
+		p.tap("age", e.age)
+	}
+	if e.mass != "" {
+		p.do(chromedp.SendKeys(chromedp.ID("mass"), e.mass))
+	}
+	if e.foot != "" {
+		p.do(chromedp.SendKeys(chromedp.ID("m-hind-foot"), e.foot))
+	}
+	if e.notes != "" {
+		p.do(chromedp.SendKeys(chromedp.ID("notes"), e.notes))
+	}
+	p.click("#save")
+	p.wait(fmt.Sprintf(`document.getElementById("tab-count").textContent === "%d" && document.getElementById("tag").value === ""`, n))
+}
+
+// erase deletes what the field id holds with the backspace key.
+func (p phone) erase(id string) {
+	p.t.Helper()
+	n := evalAs[int](p.page, fmt.Sprintf(`document.getElementById(%q).value.length`, id))
+	p.do(chromedp.Focus(chromedp.ID(id)), chromedp.KeyEvent(strings.Repeat(kb.End, 1)+strings.Repeat(kb.Backspace, n)))
+	if v := evalAs[string](p.page, fmt.Sprintf(`document.getElementById(%q).value`, id)); v != "" {
+		p.t.Fatalf("erasing %s left %q", id, v)
+	}
+}
+
+// choose picks value on the list id with the arrow keys, as on a phone's
+// keyboard or a laptop's. (Typing an option's name would open the list at
+// its first space, and a list that is open cannot be driven headless.)
+func (p phone) choose(id, value string) {
+	p.t.Helper()
+	steps := evalAs[int](p.page, fmt.Sprintf(`(() => { const s = document.getElementById(%q);
+		return Array.from(s.options).findIndex((o) => o.value === %q) - s.selectedIndex; })()`, id, value))
+	key := kb.ArrowDown
+	if steps < 0 {
+		key, steps = kb.ArrowUp, -steps
+	}
+	p.do(chromedp.Focus(chromedp.ID(id)), chromedp.KeyEvent(strings.Repeat(key, steps)))
+	if got := evalAs[string](p.page, fmt.Sprintf(`document.getElementById(%q).value`, id)); got != value {
+		p.t.Fatalf("choosing %q on the list %s chose %q", value, id, got)
+	}
+}
+
+// tap taps the choice value of the radio group name on its visible box,
+// as a finger does, and checks that it took.
+func (p phone) tap(name, value string) {
+	p.t.Helper()
+	p.click(fmt.Sprintf(`input[name=%q][value=%q] + span`, name, value))
+	if got := evalAs[string](p.page, fmt.Sprintf(`document.querySelector('input[name=%q]:checked').value`, name)); got != value {
+		p.t.Fatalf("tapping %s %q left %q chosen", name, value, got)
+	}
+}
+
+// click taps the element sel as a finger does: it scrolls the element to
+// the middle of the screen, checks that nothing (the header, the tab bar,
+// a message) covers its centre, and clicks there.
+func (p phone) click(sel string) {
+	p.t.Helper()
+	covered := evalAs[string](p.page, fmt.Sprintf(`(() => {
+		const el = document.querySelector(%q);
+		if (!el) return "not found";
+		el.scrollIntoView({ block: "center", inline: "nearest" });
+		const r = el.getBoundingClientRect();
+		const hit = document.elementFromPoint(r.x + r.width / 2, r.y + r.height / 2);
+		if (hit && (hit === el || el.contains(hit) || hit.contains(el) && hit.tagName === "LABEL")) return "";
+		return hit ? "covered by " + hit.tagName.toLowerCase() + (hit.id ? "#" + hit.id : "") + "." + hit.className : "off the screen";
+	})()`, sel))
+	if covered != "" {
+		p.t.Fatalf("cannot tap %s: %s", sel, covered)
+	}
+	p.do(chromedp.Click(chromedp.CSS(sel)))
+}
+
+// phoneCapture is what the test reads back from the phone's IndexedDB.
+type phoneCapture struct {
+	ID       string  `json:"id"`
+	TagID    string  `json:"tag_id"`
+	OldTagID string  `json:"old_tag_id"`
+	Event    string  `json:"event"`
+	Observer string  `json:"observer"`
+	Device   string  `json:"device"`
+	Station  string  `json:"station_id"`
+	Lat      float64 `json:"lat"`
+}
+
+// stored reads the phone's stored records (store "captures" or "outbox").
+func (p phone) stored(storeName string) []phoneCapture {
+	p.t.Helper()
+	return await[[]phoneCapture](p, fmt.Sprintf(`new Promise((resolve, reject) => {
+		const r = indexedDB.open("tagtally");
+		r.onerror = () => reject(r.error);
+		r.onsuccess = () => {
+			const q = r.result.transaction(%[1]q).objectStore(%[1]q).getAll();
+			q.onerror = () => reject(q.error);
+			q.onsuccess = () => { r.result.close(); resolve(q.result.map((x) => x.body || x)); };
+		};
+	})`, storeName))
+}
+
+// fieldDay is the 20 records of the offline test: 14 new marks, a
+// recapture typed in full, one picked from the type-ahead by its digits, a
+// retag, a recapture of the new tag of the retagged animal, a resight and a
+// dead recovery.
+var fieldDay = func() []entry {
+	var es []entry
+	for i := 1; i <= 14; i++ {
+		e := entry{tag: fmt.Sprintf("BF-%04d", i), status: "new", sex: []string{"female", "male"}[i%2], age: "adult",
+			mass: fmt.Sprintf("%d.%d", 18+i%7, i%10), foot: "17.5"}
+		switch i {
+		case 1:
+			e.station = "A1" // the nearest is offered first; the crew chooses
+		case 6:
+			e.station, e.species, e.age = "B2", "wood mouse", "juvenile"
+		case 11:
+			e.species = "bank vole"
+		}
+		es = append(es, e)
+	}
+	return append(es,
+		entry{tag: "BF-0003", status: "recapture", mass: "22.5", notes: "ear notch healed"},
+		entry{tag: "BF-0012", pick: "12", status: "recapture", mass: "20"},
+		entry{tag: "BF-0101", status: "new", event: "retag", oldTag: "BF-0005", notes: "old tag torn"},
+		entry{tag: "BF-0101", status: "recapture", station: "B1"},
+		entry{tag: "BF-0007", status: "recapture", event: "resight"},
+		entry{tag: "BF-0009", status: "recapture", event: "dead", notes: "found in trap"},
+	)
+}()
+
+// TestPhoneAppOfflineInBrowser is the field day of issue 6: the app is
+// loaded while the camp server answers, the service worker installs, the
+// server stops, the app reloads from its cache, 20 records are entered
+// through the form (a recapture, a retag among them), the browser is
+// closed and opened again with the server still gone, then the server
+// comes back on the same address, the outbox is sent and the server holds
+// all 20 exactly once. A second phone then joins and knows the first
+// phone's tags in its type-ahead.
+func TestPhoneAppOfflineInBrowser(t *testing.T) {
+	ps := newPhoneServer(t)
+	profile := t.TempDir()
+	nearB1 := [2]float64{52.6103, 1.3500} // station B1's position
+	p := openPhone(t, profile, ps.url(), 360, 740, nearB1)
+	p.join("JW")
+	p.waitServiceWorker()
+	// Nearest station first, from the GPS position.
+	p.wait(`document.getElementById("station").options.length === 5 && document.getElementById("station").options[1].value === "B1"`)
+
+	ps.stop() // out of reach of the camp
+	p.do(chromedp.Reload(), chromedp.WaitVisible(chromedp.ID("capture-form")))
+	if got := p.text("#study-name"); got != ps.study.Name {
+		t.Errorf("offline reload shows study %q, want %q", got, ps.study.Name)
+	}
+	p.wait(`document.getElementById("gps-line").textContent.startsWith("Position: 52.61")`)
+	for i, e := range fieldDay {
+		p.record(e, i+1)
+	}
+	// The recapture's form said what the animal was last time before it
+	// was saved; the retag links the old tag to the new one.
+	if got := evalAs[string](p.page, `document.querySelector('input[name="event"]:checked').value`); got != "new" {
+		t.Errorf("the form is not ready for a new record: event %q", got)
+	}
+	p.do(chromedp.SendKeys(chromedp.ID("tag"), "BF-0005"))
+	p.wait(`document.getElementById("tag-status").classList.contains("recapture")`)
+	if status := p.text("#tag-status"); !strings.Contains(status, "station trap B1") {
+		t.Errorf("the old tag of a retagged animal does not show the animal's last record (at trap B1): %q", status)
+	}
+	p.erase("tag")
+
+	// Close the browser and open it again: the records are on the phone.
+	p.close()
+	p = openPhone(t, profile, ps.url(), 360, 740, nearB1)
+	p.do(chromedp.WaitVisible(chromedp.ID("capture-form")))
+	p.click(`.tabs button[data-go="today"]`)
+	p.wait(`!document.getElementById("screen-today").hidden`)
+	p.wait(`document.getElementById("today-count").textContent.startsWith("20 records today")`)
+	if n := evalAs[int](p.page, `document.querySelectorAll("#today-list li").length`); n != 20 {
+		t.Errorf("after reopening, Today lists %d records, want 20", n)
+	}
+	p.click(`.tabs button[data-go="outbox"]`)
+	p.wait(`!document.getElementById("screen-outbox").hidden`)
+	if got := p.text("#outbox-count"); got != "20" {
+		t.Errorf("after reopening, the outbox holds %s records, want 20", got)
+	}
+	onPhone := p.stored("captures")
+	if waiting := p.stored("outbox"); len(onPhone) != 20 || len(waiting) != 20 {
+		t.Fatalf("the phone holds %d records and %d in the outbox, want 20 and 20", len(onPhone), len(waiting))
+	}
+	p.click("#sync-now")
+	p.wait(`document.getElementById("sync-message").textContent.includes("does not answer")`)
+
+	// Back in camp: the server answers on the same address.
+	ps.start()
+	p.click("#sync-now")
+	p.wait(`document.getElementById("outbox-count").textContent === "0"`)
+	if msg := p.text("#sync-message"); !strings.HasPrefix(msg, "Sent 20") {
+		t.Errorf("sync message %q, want it to say 20 were sent", msg)
+	}
+	if left := p.stored("outbox"); len(left) != 0 {
+		t.Errorf("%d records left in the outbox after sync", len(left))
+	}
+	checkServerHolds(t, ps, onPhone)
+
+	// A second press sends nothing new, and the server still holds 20.
+	p.click("#sync-now")
+	p.wait(`document.getElementById("sync-message").textContent.startsWith("Sent 0")`)
+	checkServerHolds(t, ps, onPhone)
+	if got := p.text("#sync-pill"); !strings.HasPrefix(got, "Synced") {
+		t.Errorf("sync pill says %q after sync", got)
+	}
+
+	// A second phone joins and pulls: the first phone's tags are in its
+	// type-ahead, and a tag marked there is a recapture here.
+	q := openPhone(t, t.TempDir(), ps.url(), 360, 740, nearB1)
+	q.join("MH")
+	q.wait(`document.getElementById("last-sync").textContent !== "never"`)
+	q.do(chromedp.SendKeys(chromedp.ID("tag"), "BF-00"))
+	q.wait(`document.querySelectorAll("#tag-suggestions button").length === 6`)
+	chips := evalAs[[]string](q.page, `Array.from(document.querySelectorAll("#tag-suggestions button"), (b) => b.textContent)`)
+	if want := []string{"BF-0001", "BF-0002", "BF-0003", "BF-0004", "BF-0005", "BF-0006"}; !slices.Equal(chips, want) {
+		t.Errorf("second phone suggests %v for BF-00, want %v", chips, want)
+	}
+	q.erase("tag")
+	q.record(entry{tag: "BF-0101", pick: "0101", status: "recapture", station: "A2", mass: "23"}, 1)
+	q.click(`.tabs button[data-go="outbox"]`)
+	q.click("#sync-now")
+	q.wait(`document.getElementById("outbox-count").textContent === "0"`)
+	if all, err := ps.store.Captures(ps.study.ID, true); err != nil || len(all) != 21 {
+		t.Errorf("after the second phone's record the server holds %d records (%v), want 21", len(all), err)
+	}
+}
+
+// checkServerHolds checks that the server holds exactly the phone's records,
+// each once and in one version, with the fields the crew entered.
+func checkServerHolds(t *testing.T, ps *phoneServer, onPhone []phoneCapture) {
+	t.Helper()
+	all, err := ps.store.Captures(ps.study.ID, true)
+	if err != nil {
+		t.Fatal(err)
+	}
+	eng, err := ps.srv.engine()
+	if err != nil {
+		t.Fatal(err)
+	}
+	byID := map[string]capture.Capture{}
+	for _, c := range all {
+		byID[c.ID] = c
+	}
+	if len(all) != len(onPhone) || len(byID) != len(onPhone) {
+		t.Errorf("server holds %d records (%d IDs), the phone made %d", len(all), len(byID), len(onPhone))
+	}
+	events := map[capture.Event]int{}
+	for _, pc := range onPhone {
+		c, ok := byID[pc.ID]
+		if !ok {
+			t.Errorf("record %s (%s) is not on the server", pc.ID, pc.TagID)
+			continue
+		}
+		events[c.Event]++
+		if c.TagID != pc.TagID || string(c.Event) != pc.Event || c.OldTagID != pc.OldTagID || c.Observer != "JW" || c.Device != pc.Device || c.Device == "" {
+			t.Errorf("server's %s: tag %s event %s old %q observer %q device %q; phone's: %+v", c.ID, c.TagID, c.Event, c.OldTagID, c.Observer, c.Device, pc)
+		}
+		// The time the phone recorded falls in occasion 3, whose window
+		// holds the test's now; the position is the phone's GPS fix.
+		if occ := ps.study.OccasionAt(c.CapturedAt); occ != 3 || c.Lat == nil || pc.Lat == 0 || *c.Lat != pc.Lat {
+			t.Errorf("server's %s: captured at %s (occasion %d), latitude %v; want occasion 3 and the phone's GPS fix %v", c.ID, c.CapturedAt, occ, c.Lat, pc.Lat)
+		}
+		h, err := eng.History(ps.study.ID, c.ID)
+		if err != nil || len(h.Revisions) != 1 || h.Conflict {
+			t.Errorf("server's %s has %d revisions (conflict %v, %v), want one", c.ID, len(h.Revisions), h != nil && h.Conflict, err)
+		}
+	}
+	want := map[capture.Event]int{capture.EventNewMark: 14, capture.EventRecapture: 3, capture.EventRetag: 1, capture.EventResight: 1, capture.EventDeadRecovery: 1}
+	for ev, n := range want {
+		if events[ev] != n {
+			t.Errorf("server holds %d %s records, want %d (all: %v)", events[ev], ev, n, events)
+		}
+	}
+}
