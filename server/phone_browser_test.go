@@ -15,7 +15,9 @@ import (
 	"time"
 
 	cdpbrowser "github.com/chromedp/cdproto/browser"
+	"github.com/chromedp/cdproto/cdp"
 	"github.com/chromedp/cdproto/emulation"
+	cdppage "github.com/chromedp/cdproto/page"
 	"github.com/chromedp/chromedp"
 	"github.com/chromedp/chromedp/kb"
 
@@ -561,4 +563,193 @@ func checkServerHolds(t *testing.T, ps *phoneServer, onPhone []phoneCapture) {
 			t.Errorf("server holds %d %s records, want %d (all: %v)", events[ev], ev, n, events)
 		}
 	}
+}
+
+// TestPhoneAppInstallableInBrowser asks Chromium itself whether the app
+// can be installed to the home screen once its service worker runs: the
+// manifest must parse without errors and Page.getInstallabilityErrors
+// must list none.
+func TestPhoneAppInstallableInBrowser(t *testing.T) {
+	ps := newPhoneServer(t)
+	p := openPhone(t, t.TempDir(), ps.url(), 360, 740, [2]float64{52.61, 1.35})
+	p.join("JW")
+	p.waitServiceWorker()
+	man, err := chromedp.Call(p.ctx, cdppage.GetAppManifest, cdppage.GetAppManifestParams{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, e := range man.Errors {
+		t.Errorf("manifest error: %s (line %d)", e.Message, e.Line)
+	}
+	if man.Manifest == nil || !strings.HasSuffix(man.URL, "/manifest.webmanifest") {
+		t.Errorf("Chromium found no manifest (url %q)", man.URL)
+	}
+	inst, err := chromedp.Call(p.ctx, cdppage.GetInstallabilityErrors, cdp.Empty{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, e := range inst.InstallabilityErrors {
+		var args []string
+		for _, a := range e.ErrorArguments {
+			args = append(args, a.Name+"="+a.Value)
+		}
+		t.Errorf("not installable: %s %v", e.ErrorID, args)
+	}
+}
+
+// layoutCheck lists what a crew member would find wrong on the screen as
+// shown, at the window's width: anything reaching past the screen's edges
+// (or a page wider than the screen), an element shown although marked
+// hidden, a touch target smaller than 48 x 48
+// CSS px, a field without a label, and text whose contrast with its
+// background is below minContrast (WCAG 2 contrast ratio). It also gives
+// the lowest contrast found. Hidden elements are skipped.
+const layoutCheck = `((minContrast) => {
+	const W = document.documentElement.clientWidth;
+	const problems = [];
+	const name = (el) => el.tagName.toLowerCase() + (el.id ? "#" + el.id : "") +
+		(typeof el.className === "string" && el.className ? "." + el.className.split(" ")[0] : "") +
+		' "' + (el.textContent || el.value || "").trim().replace(/\s+/g, " ").slice(0, 30) + '"';
+	const shown = (el) => {
+		const r = el.getBoundingClientRect();
+		if (r.width === 0 && r.height === 0) return false;
+		const s = getComputedStyle(el);
+		return s.visibility !== "hidden" && s.display !== "none" && Number(s.opacity) > 0;
+	};
+	if (document.documentElement.scrollWidth > W) problems.push("the page is " + document.documentElement.scrollWidth + " px wide on a " + W + " px screen");
+	const all = Array.from(document.body.querySelectorAll("*")).filter(shown);
+	for (const el of all) {
+		if (el.hidden) problems.push(name(el) + " is shown although hidden");
+	}
+	for (const el of all) {
+		const r = el.getBoundingClientRect();
+		if (r.right > W + 0.5 || r.left < -0.5) problems.push(name(el) + " reaches " + Math.round(r.left) + " to " + Math.round(r.right) + " px");
+	}
+	for (const el of all.filter((e) => e.matches("button, a[href], select, textarea, input:not([type=radio]), .choices span"))) {
+		const r = el.getBoundingClientRect();
+		if (r.width < 48 || r.height < 48) problems.push(name(el) + " is a " + Math.round(r.width) + " x " + Math.round(r.height) + " px target");
+	}
+	for (const el of all.filter((e) => e.matches("input:not([type=radio]), select, textarea"))) {
+		if (el.labels.length === 0 && !el.getAttribute("aria-label")) problems.push(name(el) + " has no label");
+	}
+	const rgba = (s) => { const m = s.match(/[\d.]+/g).map(Number); return { r: m[0], g: m[1], b: m[2], a: m.length > 3 ? m[3] : 1 }; };
+	const lum = (c) => {
+		const f = (v) => { v /= 255; return v <= 0.03928 ? v / 12.92 : Math.pow((v + 0.055) / 1.055, 2.4); };
+		return 0.2126 * f(c.r) + 0.7152 * f(c.g) + 0.0722 * f(c.b);
+	};
+	const background = (el) => {
+		for (let e = el; e; e = e.parentElement) {
+			const c = rgba(getComputedStyle(e).backgroundColor);
+			if (c.a > 0.5) return c;
+		}
+		return { r: 255, g: 255, b: 255, a: 1 };
+	};
+	let lowest = 21;
+	for (const el of all) {
+		const own = Array.from(el.childNodes).some((n) => n.nodeType === 3 && n.textContent.trim() !== "");
+		const field = el.matches("input:not([type=radio]), select, textarea") && el.value;
+		if (!own && !field) continue;
+		const fg = lum(rgba(getComputedStyle(el).color)), bg = lum(background(el));
+		const ratio = (Math.max(fg, bg) + 0.05) / (Math.min(fg, bg) + 0.05);
+		lowest = Math.min(lowest, ratio);
+		if (ratio < minContrast) problems.push(name(el) + " has contrast " + ratio.toFixed(2));
+	}
+	return { problems, lowest };
+})`
+
+type layoutReport struct {
+	Problems []string `json:"problems"`
+	Lowest   float64  `json:"lowest"`
+}
+
+// minContrast is WCAG 2's enhanced level (7:1, success criterion 1.4.6)
+// rather than the minimum 4.5:1: crews read the screen in bright sun.
+const minContrast = 7.0
+
+// checkLayout runs layoutCheck at each width on the screen shown and
+// reports every problem; it returns the lowest contrast seen.
+func (p phone) checkLayout(screen string, widths ...int64) float64 {
+	p.t.Helper()
+	lowest := 21.0
+	for _, w := range widths {
+		p.do(chromedp.EmulateViewport(w, 740, chromedp.EmulateMobile, chromedp.EmulatePortrait))
+		r := evalAs[layoutReport](p.page, fmt.Sprintf("%s(%v)", layoutCheck, minContrast))
+		for _, pr := range r.Problems {
+			p.t.Errorf("%s screen at %d px: %s", screen, w, pr)
+		}
+		lowest = min(lowest, r.Lowest)
+	}
+	p.do(chromedp.EmulateViewport(360, 740, chromedp.EmulateMobile, chromedp.EmulatePortrait))
+	return lowest
+}
+
+// TestPhoneCaptureScreenInBrowser looks at the app as a crew member holds
+// it: every screen at 320 and 360 px wide has no horizontal scroll, touch
+// targets of at least 48 px, labelled fields and high contrast; the
+// number fields bring up a numeric keypad; and the capture screen with a
+// recapture's last record is photographed at 360 x 740 (written to
+// TAGTALLY_SCREENSHOTS, or a temporary folder, logged).
+func TestPhoneCaptureScreenInBrowser(t *testing.T) {
+	ps := newPhoneServer(t)
+	// One animal marked yesterday on another phone, so the capture screen
+	// can show a recapture and its last record.
+	mass := 21.5
+	if _, _, err := ps.store.CreateCapture(&capture.Capture{
+		ID: "01a23000-0000-7000-8000-000000000042", StudyID: ps.study.ID, TagID: "BF-0042", Event: capture.EventNewMark,
+		Species: "bank vole", Sex: capture.SexFemale, Age: capture.AgeAdult, MassG: &mass, StationID: "A2",
+		CapturedAt: time.Now().Add(-22 * time.Hour).Truncate(time.Second), Observer: "MH", Device: "phone-other",
+	}); err != nil {
+		t.Fatal(err)
+	}
+	p := openPhone(t, t.TempDir(), ps.url(), 360, 740, [2]float64{52.6103, 1.3500})
+	lowest := 21.0
+	p.wait(`document.querySelector("#study-list button") !== null`)
+	lowest = min(lowest, p.checkLayout("join", 320, 360))
+	p.do(chromedp.SendKeys(chromedp.ID("observer"), "JW"))
+	p.click("#study-list button")
+	p.wait(`!document.getElementById("screen-cautions").hidden`)
+	lowest = min(lowest, p.checkLayout("cautions", 320, 360))
+	p.click("#accept-cautions")
+	p.wait(`!document.getElementById("screen-record").hidden`)
+	p.wait(`document.getElementById("last-sync").textContent !== "never" && document.getElementById("gps-line").textContent.startsWith("Position: 52.61")`)
+
+	for _, f := range []struct{ id, mode string }{{"tag", "numeric"}, {"old-tag", "numeric"}, {"mass", "decimal"}, {"m-hind-foot", "decimal"}} {
+		if got := evalAs[string](p.page, fmt.Sprintf(`document.getElementById(%q).inputMode`, f.id)); got != f.mode {
+			t.Errorf("field %s brings up the %q keyboard, want %q", f.id, got, f.mode)
+		}
+	}
+
+	// The capture screen as the crew sees it with an animal in hand.
+	p.do(chromedp.SendKeys(chromedp.ID("tag"), "42"))
+	p.wait(`document.querySelectorAll("#tag-suggestions button").length === 1`)
+	p.click("#tag-suggestions button")
+	p.wait(`document.getElementById("tag-status").classList.contains("recapture")`)
+	if status := p.text("#tag-status"); !strings.Contains(status, "bank vole, female, adult, 21.5 g, station trap A2") {
+		t.Errorf("recapture status does not show the animal's last record: %q", status)
+	}
+	p.do(chromedp.Evaluate[chromedp.Void](`window.scrollTo(0, 0)`))
+	p.shot("phone-capture-360x740.png", false)
+	p.shot("phone-capture-360-full.png", true)
+	lowest = min(lowest, p.checkLayout("record", 320, 360))
+	p.tap("event", "retag")
+	lowest = min(lowest, p.checkLayout("record (retag)", 320, 360))
+	p.tap("event", "recapture")
+	p.tap("sex", "female")
+	p.do(chromedp.SendKeys(chromedp.ID("mass"), "22"))
+	p.click("#save")
+	p.wait(`document.getElementById("tab-count").textContent === "1"`)
+
+	p.click(`.tabs button[data-go="today"]`)
+	p.wait(`document.querySelectorAll("#today-list li").length === 1`)
+	lowest = min(lowest, p.checkLayout("today", 320, 360))
+	p.click("#today-list li button")
+	p.wait(`!document.getElementById("editing-banner").hidden`)
+	lowest = min(lowest, p.checkLayout("record (editing)", 320, 360))
+	p.click("#cancel-edit")
+
+	p.click(`.tabs button[data-go="outbox"]`)
+	p.wait(`!document.getElementById("screen-outbox").hidden`)
+	lowest = min(lowest, p.checkLayout("outbox", 320, 360))
+	p.shot("phone-outbox-360x740.png", false)
+	t.Logf("lowest text contrast on the screens: %.2f:1", lowest)
 }

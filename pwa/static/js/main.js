@@ -93,7 +93,13 @@ async function checkStorage() {
   $("persisted").textContent = persisted
     ? "yes: the browser will not clear it to free space"
     : "no: the browser may clear it; add the app to the home screen and sync often";
-  $("evict-banner").hidden = persisted;
+  // The banner takes room above the form, so the crew may put it away
+  // until the app is next opened; the Outbox screen still says it.
+  let putAway = false;
+  try {
+    putAway = sessionStorage.getItem("tagtally-evict-seen") === "1";
+  } catch {}
+  $("evict-banner").hidden = persisted || putAway;
   if (navigator.storage && navigator.storage.estimate) {
     const { usage, quota } = await navigator.storage.estimate();
     $("usage").textContent = `${formatBytes(usage)} of ${formatBytes(quota)} allowed`;
@@ -423,6 +429,8 @@ async function saveRecord() {
   toast(state.editing ? "Change saved on this phone" : `Saved ${body.tag_id} on this phone`);
   await reloadCaptures();
   resetForm(false);
+  // Back to the tag field for the next animal.
+  window.scrollTo(0, 0);
   syncSoon();
 }
 
@@ -583,7 +591,7 @@ async function renderCounts() {
   const last = await db.getMeta("last-sync");
   const pill = $("sync-pill");
   pill.classList.toggle("waiting", n > 0);
-  pill.textContent = n > 0 ? `${n} waiting` : last ? `Synced ${formatWhen(last)}` : "Not synced yet";
+  pill.textContent = n > 0 ? `${n} waiting` : last ? `Synced ${formatWhen(last).replace(/^today /, "")}` : "Not synced yet";
   $("last-sync").textContent = last ? formatWhen(last) : "never";
 }
 
@@ -603,6 +611,12 @@ async function renderOutbox() {
 }
 
 function wireOutbox() {
+  $("evict-ok").addEventListener("click", () => {
+    $("evict-banner").hidden = true;
+    try {
+      sessionStorage.setItem("tagtally-evict-seen", "1");
+    } catch {}
+  });
   $("sync-now").addEventListener("click", () => syncNow(true));
   $("save-backup").addEventListener("click", saveBackup);
   $("change-study").addEventListener("click", async () => {
