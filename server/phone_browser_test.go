@@ -425,6 +425,8 @@ var fieldDay = func() []entry {
 // phone's tags in its type-ahead.
 func TestPhoneAppOfflineInBrowser(t *testing.T) {
 	ps := newPhoneServer(t)
+	t0 := time.Now()
+	mark := func(what string) { t.Logf("%5.1f s %s", time.Since(t0).Seconds(), what) }
 	profile := t.TempDir()
 	nearB1 := [2]float64{52.6103, 1.3500} // station B1's position
 	p := openPhone(t, profile, ps.url(), 360, 740, nearB1)
@@ -433,7 +435,9 @@ func TestPhoneAppOfflineInBrowser(t *testing.T) {
 	// Nearest station first, from the GPS position.
 	p.wait(`document.getElementById("station").options.length === 5 && document.getElementById("station").options[1].value === "B1"`)
 
+	mark("service worker installed")
 	ps.stop() // out of reach of the camp
+	mark("server stopped")
 	p.do(chromedp.Reload(), chromedp.WaitVisible(chromedp.ID("capture-form")))
 	if got := p.text("#study-name"); got != ps.study.Name {
 		t.Errorf("offline reload shows study %q, want %q", got, ps.study.Name)
@@ -442,6 +446,7 @@ func TestPhoneAppOfflineInBrowser(t *testing.T) {
 	for i, e := range fieldDay {
 		p.record(e, i+1)
 	}
+	mark("20 records saved offline")
 	// The recapture's form said what the animal was last time before it
 	// was saved; the retag links the old tag to the new one.
 	if got := evalAs[string](p.page, `document.querySelector('input[name="event"]:checked').value`); got != "new" {
@@ -456,8 +461,10 @@ func TestPhoneAppOfflineInBrowser(t *testing.T) {
 
 	// Close the browser and open it again: the records are on the phone.
 	p.close()
+	mark("browser closed")
 	p = openPhone(t, profile, ps.url(), 360, 740, nearB1)
-	p.do(chromedp.WaitVisible(chromedp.ID("capture-form")))
+	p.wait(`!document.getElementById("screen-record").hidden`)
+	mark("browser reopened")
 	p.click(`.tabs button[data-go="today"]`)
 	p.wait(`!document.getElementById("screen-today").hidden`)
 	p.wait(`document.getElementById("today-count").textContent.startsWith("20 records today")`)
@@ -478,6 +485,7 @@ func TestPhoneAppOfflineInBrowser(t *testing.T) {
 
 	// Back in camp: the server answers on the same address.
 	ps.start()
+	mark("server started")
 	p.click("#sync-now")
 	p.wait(`document.getElementById("outbox-count").textContent === "0"`)
 	if msg := p.text("#sync-message"); !strings.HasPrefix(msg, "Sent 20") {
@@ -486,6 +494,7 @@ func TestPhoneAppOfflineInBrowser(t *testing.T) {
 	if left := p.stored("outbox"); len(left) != 0 {
 		t.Errorf("%d records left in the outbox after sync", len(left))
 	}
+	mark("synced")
 	checkServerHolds(t, ps, onPhone)
 
 	// A second press sends nothing new, and the server still holds 20.
@@ -498,6 +507,7 @@ func TestPhoneAppOfflineInBrowser(t *testing.T) {
 
 	// A second phone joins and pulls: the first phone's tags are in its
 	// type-ahead, and a tag marked there is a recapture here.
+	mark("second phone")
 	q := openPhone(t, t.TempDir(), ps.url(), 360, 740, nearB1)
 	q.join("MH")
 	q.wait(`document.getElementById("last-sync").textContent !== "never"`)
@@ -508,10 +518,10 @@ func TestPhoneAppOfflineInBrowser(t *testing.T) {
 		t.Errorf("second phone suggests %v for BF-00, want %v", chips, want)
 	}
 	q.erase("tag")
+	// With the server answering, a saved record is sent by itself.
 	q.record(entry{tag: "BF-0101", pick: "0101", status: "recapture", station: "A2", mass: "23"}, 1)
-	q.click(`.tabs button[data-go="outbox"]`)
-	q.click("#sync-now")
-	q.wait(`document.getElementById("outbox-count").textContent === "0"`)
+	q.wait(`document.getElementById("outbox-count").textContent === "0" && document.getElementById("tab-count").hidden`)
+	mark("second phone's record sent")
 	if all, err := ps.store.Captures(ps.study.ID, true); err != nil || len(all) != 21 {
 		t.Errorf("after the second phone's record the server holds %d records (%v), want 21", len(all), err)
 	}
@@ -556,6 +566,13 @@ func checkServerHolds(t *testing.T, ps *phoneServer, onPhone []phoneCapture) {
 		if err != nil || len(h.Revisions) != 1 || h.Conflict {
 			t.Errorf("server's %s has %d revisions (conflict %v, %v), want one", c.ID, len(h.Revisions), h != nil && h.Conflict, err)
 		}
+	}
+	retagged := false
+	for _, c := range all {
+		retagged = retagged || c.Event == capture.EventRetag && c.OldTagID == "BF-0005" && c.TagID == "BF-0101"
+	}
+	if !retagged {
+		t.Errorf("server holds no retag of BF-0005 to BF-0101")
 	}
 	want := map[capture.Event]int{capture.EventNewMark: 14, capture.EventRecapture: 3, capture.EventRetag: 1, capture.EventResight: 1, capture.EventDeadRecovery: 1}
 	for ev, n := range want {
