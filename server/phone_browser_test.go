@@ -459,12 +459,17 @@ func TestPhoneAppOfflineInBrowser(t *testing.T) {
 	}
 	p.erase("tag")
 
-	// Close the browser and open it again: the records are on the phone.
+	// Close the browser and open it again: the records are on the phone,
+	// and so is an entry the crew had begun but not saved.
+	p.do(chromedp.SendKeys(chromedp.ID("tag"), "BF-0200"), chromedp.SendKeys(chromedp.ID("mass"), "19.5"))
 	p.close()
 	mark("browser closed")
 	p = openPhone(t, profile, ps.url(), 360, 740, nearB1)
 	p.wait(`!document.getElementById("screen-record").hidden`)
 	mark("browser reopened")
+	p.wait(`document.getElementById("tag").value === "BF-0200" && document.getElementById("mass").value === "19.5"`)
+	p.erase("tag")
+	p.erase("mass")
 	p.click(`.tabs button[data-go="today"]`)
 	p.wait(`!document.getElementById("screen-today").hidden`)
 	p.wait(`document.getElementById("today-count").textContent.startsWith("20 records today")`)
