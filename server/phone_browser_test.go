@@ -1,12 +1,17 @@
 package server
 
 import (
+	"bytes"
 	"context"
+	"encoding/json"
 	"fmt"
 	"io"
 	"io/fs"
 	"log/slog"
 	"net"
+	"net/http"
+	"os"
+	"path/filepath"
 	"regexp"
 	"slices"
 	"sort"
@@ -774,4 +779,83 @@ func TestPhoneCaptureScreenInBrowser(t *testing.T) {
 	lowest = min(lowest, p.checkLayout("outbox", 320, 360))
 	p.shot("phone-outbox-360x740.png", false)
 	t.Logf("lowest text contrast on the screens: %.2f:1", lowest)
+}
+
+// TestPhoneBackupFileInBrowser follows a phone that cannot reach the camp
+// server: the crew saves the outbox as a backup file on the phone, the
+// coordinator imports the file, and when the phone reaches the server
+// later its own push adds nothing: each record is held once, in one
+// version, with no conflict.
+func TestPhoneBackupFileInBrowser(t *testing.T) {
+	ps := newPhoneServer(t)
+	p := openPhone(t, t.TempDir(), ps.url(), 360, 740, [2]float64{52.6103, 1.3500})
+	p.join("JW")
+	p.waitServiceWorker()
+	ps.stop()
+	for i, e := range []entry{
+		{tag: "BF-0301", status: "new", station: "B1", sex: "male", mass: "20.5"},
+		{tag: "BF-0302", status: "new", sex: "female", mass: "23", notes: "pregnant"},
+		{tag: "BF-0301", status: "recapture", event: "resight"},
+	} {
+		p.record(e, i+1)
+	}
+	downloads := t.TempDir()
+	if _, err := chromedp.CallBrowser(p.ctx, cdpbrowser.SetDownloadBehavior, cdpbrowser.SetDownloadBehaviorParams{
+		Behavior: cdpbrowser.SetDownloadBehaviorBehaviorAllow, DownloadPath: downloads,
+	}); err != nil {
+		t.Fatal(err)
+	}
+	p.click(`.tabs button[data-go="outbox"]`)
+	p.wait(`!document.getElementById("screen-outbox").hidden`)
+	p.click("#save-backup")
+	var file []byte
+	for deadline := time.Now().Add(15 * time.Second); file == nil && time.Now().Before(deadline); time.Sleep(100 * time.Millisecond) {
+		names, _ := filepath.Glob(filepath.Join(downloads, "tagtally-outbox-*.json"))
+		if len(names) == 1 {
+			file, _ = os.ReadFile(names[0])
+		}
+	}
+	var backup struct {
+		Kind    string         `json:"kind"`
+		StudyID string         `json:"study_id"`
+		Records []phoneCapture `json:"records"`
+	}
+	if err := json.Unmarshal(file, &backup); err != nil || backup.Kind != "tagtally outbox backup" || backup.StudyID != ps.study.ID || len(backup.Records) != 3 {
+		t.Fatalf("backup file %q (%v): want the 3 waiting records of study %s", file, err, ps.study.ID)
+	}
+
+	// The coordinator imports the file at camp.
+	ps.start()
+	resp, err := http.Post(ps.url()+"/api/v1/studies/"+ps.study.ID+"/import?name=phone-backup.json", "application/json", bytes.NewReader(file))
+	if err != nil {
+		t.Fatal(err)
+	}
+	body, _ := io.ReadAll(resp.Body)
+	resp.Body.Close()
+	if resp.StatusCode != http.StatusOK {
+		t.Fatalf("import of the phone's backup: %d %s", resp.StatusCode, body)
+	}
+	checkOnce := func(when string) {
+		t.Helper()
+		all, err := ps.store.Captures(ps.study.ID, true)
+		if err != nil || len(all) != 3 {
+			t.Fatalf("%s: server holds %d records (%v), want 3", when, len(all), err)
+		}
+		eng, err := ps.srv.engine()
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, r := range backup.Records {
+			h, err := eng.History(ps.study.ID, r.ID)
+			if err != nil || len(h.Leaves) != 1 || h.Conflict {
+				t.Errorf("%s: record %s (%s): %v; want it held once with one leaf and no conflict (history %+v)", when, r.ID, r.TagID, err, h)
+			}
+		}
+	}
+	checkOnce("after the import")
+
+	// The phone reaches the server later and sends its outbox.
+	p.click("#sync-now")
+	p.wait(`document.getElementById("outbox-count").textContent === "0"`)
+	checkOnce("after the phone's own push")
 }
