@@ -16,6 +16,7 @@ import (
 	"slices"
 	"sort"
 	"strings"
+	stdsync "sync"
 	"testing"
 	"time"
 
@@ -23,6 +24,7 @@ import (
 	"github.com/chromedp/cdproto/cdp"
 	"github.com/chromedp/cdproto/emulation"
 	cdppage "github.com/chromedp/cdproto/page"
+	"github.com/chromedp/cdproto/storage"
 	"github.com/chromedp/chromedp"
 	"github.com/chromedp/chromedp/kb"
 
@@ -105,6 +107,48 @@ func (ps *phoneServer) start() {
 	}
 }
 
+// hangingListener takes connections on addr and never answers, like a
+// camp server whose laptop has gone to sleep; the returned func closes it
+// and every connection it took.
+func hangingListener(t *testing.T, addr string) func() {
+	t.Helper()
+	ln, err := net.Listen("tcp", addr)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var mu stdsync.Mutex
+	var conns []net.Conn
+	done := make(chan struct{})
+	go func() {
+		defer close(done)
+		for {
+			c, err := ln.Accept()
+			if err != nil {
+				return
+			}
+			mu.Lock()
+			conns = append(conns, c)
+			mu.Unlock()
+		}
+	}()
+	closed := false
+	stop := func() {
+		if closed {
+			return
+		}
+		closed = true
+		ln.Close()
+		<-done
+		mu.Lock()
+		defer mu.Unlock()
+		for _, c := range conns {
+			c.Close()
+		}
+	}
+	t.Cleanup(stop)
+	return stop
+}
+
 // phoneStudy is an invented live-trapping grid whose third daily occasion
 // window holds now, so records made during the test belong to an
 // occasion. Its stations have coordinates, so the app can offer the
@@ -165,9 +209,19 @@ func (p phone) do(steps ...chromedp.Action[chromedp.Void]) {
 	ctx, cancel := context.WithTimeout(p.ctx, 20*time.Second)
 	defer cancel()
 	if err := chromedp.Do(ctx, steps...); err != nil {
-		body, _ := chromedp.Run(p.ctx, chromedp.Evaluate[string](`document.body ? document.body.innerText : ""`))
-		p.t.Fatalf("%v\npage shows:\n%s", err, body)
+		p.t.Fatalf("%v\npage shows:\n%s", err, p.shows())
 	}
+}
+
+// shows is the text of the page, for failure messages.
+func (p phone) shows() string {
+	ctx, cancel := context.WithTimeout(p.ctx, 3*time.Second)
+	defer cancel()
+	body, err := chromedp.Run(ctx, chromedp.Evaluate[string](`document.body ? document.body.innerText : ""`))
+	if err != nil {
+		return fmt.Sprintf("(cannot read the page: %v)", err)
+	}
+	return body
 }
 
 // close closes the whole browser, as when the crew closes the app or the
@@ -185,8 +239,7 @@ func (p phone) wait(expr string) {
 	p.t.Helper()
 	_, err := chromedp.Run(p.ctx, chromedp.Poll[bool](expr, chromedp.WithPollingInterval(50*time.Millisecond), chromedp.WithPollingTimeout(20*time.Second)))
 	if err != nil {
-		body, _ := chromedp.Run(p.ctx, chromedp.Evaluate[string](`document.body ? document.body.innerText : ""`))
-		p.t.Fatalf("waiting for %s: %v\npage shows:\n%s", expr, err, body)
+		p.t.Fatalf("waiting for %s: %v\npage shows:\n%s", expr, err, p.shows())
 	}
 }
 
@@ -469,6 +522,10 @@ func TestPhoneAppOfflineInBrowser(t *testing.T) {
 	p.do(chromedp.SendKeys(chromedp.ID("tag"), "BF-0200"), chromedp.SendKeys(chromedp.ID("mass"), "19.5"))
 	p.close()
 	mark("browser closed")
+	// The phone opens the app where the camp server's address takes
+	// connections but nothing answers (a laptop asleep, a server hung):
+	// the app must open from its cache all the same.
+	hang := hangingListener(t, ps.addr)
 	p = openPhone(t, profile, ps.url(), 360, 740, nearB1)
 	p.wait(`!document.getElementById("screen-record").hidden`)
 	mark("browser reopened")
@@ -492,6 +549,7 @@ func TestPhoneAppOfflineInBrowser(t *testing.T) {
 	}
 	p.click("#sync-now")
 	p.wait(`document.getElementById("sync-message").textContent.includes("does not answer")`)
+	hang()
 
 	// Back in camp: the server answers on the same address.
 	ps.start()
@@ -785,7 +843,8 @@ func TestPhoneCaptureScreenInBrowser(t *testing.T) {
 // server: the crew saves the outbox as a backup file on the phone, the
 // coordinator imports the file, and when the phone reaches the server
 // later its own push adds nothing: each record is held once, in one
-// version, with no conflict.
+// version, with no conflict. When the browser then clears the app's
+// records, the app warns that they have vanished.
 func TestPhoneBackupFileInBrowser(t *testing.T) {
 	ps := newPhoneServer(t)
 	p := openPhone(t, t.TempDir(), ps.url(), 360, 740, [2]float64{52.6103, 1.3500})
@@ -858,4 +917,15 @@ func TestPhoneBackupFileInBrowser(t *testing.T) {
 	p.click("#sync-now")
 	p.wait(`document.getElementById("outbox-count").textContent === "0"`)
 	checkOnce("after the phone's own push")
+
+	// The browser clears the app's records (as some phone browsers do
+	// after days without use): the app says so plainly when opened next.
+	if !evalAs[bool](p.page, `document.getElementById("vanished-banner").hidden`) {
+		t.Error("the vanished-records warning shows while the records are there")
+	}
+	if _, err := chromedp.Call(p.ctx, storage.ClearDataForOrigin, storage.ClearDataForOriginParams{Origin: ps.url(), StorageTypes: "indexeddb"}); err != nil {
+		t.Fatal(err)
+	}
+	p.do(chromedp.Reload())
+	p.wait(`!document.getElementById("vanished-banner").hidden && !document.getElementById("screen-join").hidden`)
 }
