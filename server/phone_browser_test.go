@@ -10,6 +10,7 @@ import (
 	"log/slog"
 	"net"
 	"net/http"
+	"net/http/httptest"
 	"os"
 	"path/filepath"
 	"regexp"
@@ -17,6 +18,7 @@ import (
 	"sort"
 	"strings"
 	stdsync "sync"
+	"sync/atomic"
 	"testing"
 	"time"
 
@@ -928,4 +930,59 @@ func TestPhoneBackupFileInBrowser(t *testing.T) {
 	}
 	p.do(chromedp.Reload())
 	p.wait(`!document.getElementById("vanished-banner").hidden && !document.getElementById("screen-join").hidden`)
+}
+
+// TestPhoneAppUpdatesInBrowser checks that opening the page from the
+// cache first does not keep a phone on an old build: when the camp server
+// has a new build (here the same app with another version name and a
+// changed page), the open app finds it when it next syncs and installs
+// the new service worker, which keeps the new page in a new cache and
+// removes the old one; the next opening shows the new page.
+func TestPhoneAppUpdatesInBrowser(t *testing.T) {
+	ps := newPhoneServer(t)
+	ps.stop()
+	var build atomic.Value // the version name of the build served; "" for this one
+	build.Store("")
+	app := ps.srv.Handler()
+	hs := httptest.NewServer(http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		next := build.Load().(string)
+		if next == "" || (r.URL.Path != "/sw.js" && r.URL.Path != "/") {
+			app.ServeHTTP(w, r)
+			return
+		}
+		// The new build's files differ from what the phone holds, so its
+		// revalidation must not be answered "not modified".
+		r.Header.Del("If-None-Match")
+		r.Header.Del("If-Modified-Since")
+		rec := httptest.NewRecorder()
+		app.ServeHTTP(rec, r)
+		body := rec.Body.Bytes()
+		if r.URL.Path == "/sw.js" {
+			body = bytes.ReplaceAll(body, []byte(pwa.Version()), []byte(next))
+		} else {
+			body = bytes.Replace(body, []byte("<title>tagtally field log</title>"), []byte("<title>tagtally field log "+next+"</title>"), 1)
+		}
+		for k, v := range rec.Header() {
+			if k != "Content-Length" && k != "Etag" {
+				w.Header()[k] = v
+			}
+		}
+		w.WriteHeader(rec.Code)
+		w.Write(body)
+	}))
+	t.Cleanup(hs.Close)
+
+	p := openPhone(t, t.TempDir(), hs.URL, 360, 740, [2]float64{52.61, 1.35})
+	p.join("JW")
+	p.waitServiceWorker()
+	// The app stays open all day: the new build is found when it syncs.
+	build.Store("next-build")
+	p.click(`.tabs button[data-go="outbox"]`)
+	p.click("#sync-now")
+	p.wait(`(async () => { const ks = await caches.keys(); return ks.includes("tagtally-shell-next-build") && !ks.includes("tagtally-shell-` + pwa.Version() + `"); })()`)
+	p.do(chromedp.Reload())
+	p.wait(`!document.getElementById("screen-record").hidden`)
+	if title := evalAs[string](p.page, `document.title`); title != "tagtally field log next-build" {
+		t.Errorf("after the update the page is %q, want the new build's page", title)
+	}
 }

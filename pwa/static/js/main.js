@@ -53,10 +53,23 @@ async function start() {
   setInterval(syncSoon, SYNC_EVERY_MS);
 }
 
+let registration = null;
 function registerServiceWorker() {
   if ("serviceWorker" in navigator) {
-    navigator.serviceWorker.register("/sw.js").catch((e) => console.warn("service worker not registered:", e));
+    navigator.serviceWorker
+      .register("/sw.js")
+      .then((r) => (registration = r))
+      .catch((e) => console.warn("service worker not registered:", e));
   }
+}
+
+// checkForNewBuild asks the camp server for a newer service worker, that
+// is a newer build of the app. Browsers look for one when a page is
+// opened, but a crew may keep the app open all day, so it also asks
+// whenever it reaches the server; the new build takes over the next time
+// the app is opened.
+function checkForNewBuild() {
+  if (registration) registration.update().catch(() => {});
 }
 
 // ---------- storage safety ----------
@@ -647,6 +660,7 @@ async function syncNow(byHand) {
       return;
     }
     $("server-state").textContent = "answering";
+    checkForNewBuild();
     const pushed = await server.pushOutbox(state.device);
     const pulled = await server.pullStudy(state.study.id, state.device);
     await db.setMeta("last-sync", new Date().toISOString());
