@@ -526,8 +526,18 @@ func ParseOutboxBackup(st *capture.Study, data []byte) ([]capture.Capture, *Repo
 		if c.Device == "" {
 			c.Device = file.Device
 		}
-		capture.DeriveOccasion(st, &c)
+		// The record is kept as the phone made it: the occasion is derived
+		// for the check only. The phone sends the same record when it
+		// reaches the server later, and only an identical body is the
+		// same revision; a body with the derived occasion written in
+		// would be a second, conflicting version of every record.
+		asSent := c.Occasion
+		occFindings := capture.DeriveOccasion(st, &c)
 		fs, err := capture.ValidateCapture(st, &c)
+		fs = append(occFindings, fs...)
+		if !c.OccasionSetByHand {
+			c.Occasion = asSent
+		}
 		var ve *capture.ValidationError
 		if errors.As(err, &ve) {
 			rep.Problems = append(rep.Problems, Problem{Row: i + 1, Column: ve.Field, Reason: ve.Message})

@@ -1,6 +1,10 @@
 // Package pwa holds the phone app: plain HTML, CSS and JavaScript modules
 // embedded in the binary, with no build step. The server serves them; the
-// service worker (static/sw.js) keeps them on the phone for offline use.
+// service worker (static/sw.js) keeps them on the phone for offline use
+// and answers the app's page from that cache first, so the app opens at
+// once whether or not the camp server answers. Each build gets its own
+// cache (see Version); the open app looks for a new build whenever it
+// reaches the server.
 //
 // Records are written to the phone's IndexedDB first (an outbox) and sent
 // to the camp server when it answers; see static/js/outbox.js for the

@@ -53,6 +53,15 @@ func screenshotDir(t *testing.T) string {
 // 800 window. It records uncaught page errors; the test fails on any.
 func browser(t *testing.T) context.Context {
 	t.Helper()
+	return browserWithProfile(t, t.TempDir())
+}
+
+// browserWithProfile is browser on the profile folder profile, which keeps
+// the browser's storage (IndexedDB, service workers, caches) between
+// starts, as a phone keeps it when the app is closed. chromedp.Cancel on
+// the returned context closes the browser before the test ends.
+func browserWithProfile(t *testing.T, profile string) context.Context {
+	t.Helper()
 	opts := []chromedp.ExecAllocatorOption{
 		chromedp.ExecPath(chromiumPath(t)),
 		chromedp.Headless,
@@ -63,7 +72,8 @@ func browser(t *testing.T) context.Context {
 		chromedp.Flag("disable-background-networking", true),
 		chromedp.Flag("disable-component-update", true),
 		chromedp.Flag("disable-sync", true),
-		chromedp.UserDataDir(t.TempDir()),
+		chromedp.Flag("disable-quic", true),
+		chromedp.UserDataDir(profile),
 		chromedp.WindowSize(1280, 800),
 	}
 	actx, cancelA := chromedp.NewExecAllocator(context.Background(), opts...)

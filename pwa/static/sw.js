@@ -45,9 +45,17 @@ self.addEventListener("fetch", (event) => {
   if (url.origin !== self.location.origin) return;
   if (url.pathname.startsWith("/api/") || url.pathname === "/healthz" || url.pathname.startsWith("/setup")) return;
   if (req.mode === "navigate") {
-    // The shell is one page: answer every navigation with it, from the
-    // cache when the camp server cannot be reached.
-    event.respondWith(fetch(req).catch(() => caches.match("/", { cacheName: CACHE })));
+    // The app's page comes from the cache first. Asking the network first
+    // would keep the crew waiting, for minutes, whenever the camp
+    // server's address takes connections but does not answer (a laptop
+    // asleep, a server hung, a weak link). A new build reaches the phone
+    // through a new service worker with a new cache, so the cached page
+    // is always the one this worker was installed with. Other pages (the
+    // coordinator's, the setup page) are not part of the phone app and
+    // go to the network.
+    if (url.pathname === "/" || url.pathname === "/index.html") {
+      event.respondWith(caches.match("/", { cacheName: CACHE }).then((hit) => hit || fetch(req)));
+    }
     return;
   }
   event.respondWith(

@@ -60,9 +60,14 @@ export async function setMeta(key, value) {
 }
 
 // saveRecord writes the capture and its outbox entry in one transaction.
+// Durability "strict" makes the browser report the commit only after the
+// data is on disk; with the default, several browsers report it once the
+// write is handed to the operating system, and a phone that dies at that
+// moment could lose a record the crew saw as saved. Browsers without the
+// option ignore it.
 export async function saveRecord(capture, entry) {
   const db = await open();
-  const tx = db.transaction(["captures", "outbox"], "readwrite");
+  const tx = db.transaction(["captures", "outbox"], "readwrite", { durability: "strict" });
   tx.objectStore("captures").put(capture);
   tx.objectStore("outbox").put(entry);
   return done(tx);

@@ -53,10 +53,23 @@ async function start() {
   setInterval(syncSoon, SYNC_EVERY_MS);
 }
 
+let registration = null;
 function registerServiceWorker() {
   if ("serviceWorker" in navigator) {
-    navigator.serviceWorker.register("/sw.js").catch((e) => console.warn("service worker not registered:", e));
+    navigator.serviceWorker
+      .register("/sw.js")
+      .then((r) => (registration = r))
+      .catch((e) => console.warn("service worker not registered:", e));
   }
+}
+
+// checkForNewBuild asks the camp server for a newer service worker, that
+// is a newer build of the app. Browsers look for one when a page is
+// opened, but a crew may keep the app open all day, so it also asks
+// whenever it reaches the server; the new build takes over the next time
+// the app is opened.
+function checkForNewBuild() {
+  if (registration) registration.update().catch(() => {});
 }
 
 // ---------- storage safety ----------
@@ -93,7 +106,13 @@ async function checkStorage() {
   $("persisted").textContent = persisted
     ? "yes: the browser will not clear it to free space"
     : "no: the browser may clear it; add the app to the home screen and sync often";
-  $("evict-banner").hidden = persisted;
+  // The banner takes room above the form, so the crew may put it away
+  // until the app is next opened; the Outbox screen still says it.
+  let putAway = false;
+  try {
+    putAway = sessionStorage.getItem("tagtally-evict-seen") === "1";
+  } catch {}
+  $("evict-banner").hidden = persisted || putAway;
   if (navigator.storage && navigator.storage.estimate) {
     const { usage, quota } = await navigator.storage.estimate();
     $("usage").textContent = `${formatBytes(usage)} of ${formatBytes(quota)} allowed`;
@@ -423,6 +442,8 @@ async function saveRecord() {
   toast(state.editing ? "Change saved on this phone" : `Saved ${body.tag_id} on this phone`);
   await reloadCaptures();
   resetForm(false);
+  // Back to the tag field for the next animal.
+  window.scrollTo(0, 0);
   syncSoon();
 }
 
@@ -583,7 +604,7 @@ async function renderCounts() {
   const last = await db.getMeta("last-sync");
   const pill = $("sync-pill");
   pill.classList.toggle("waiting", n > 0);
-  pill.textContent = n > 0 ? `${n} waiting` : last ? `Synced ${formatWhen(last)}` : "Not synced yet";
+  pill.textContent = n > 0 ? `${n} waiting` : last ? `Synced ${formatWhen(last).replace(/^today /, "")}` : "Not synced yet";
   $("last-sync").textContent = last ? formatWhen(last) : "never";
 }
 
@@ -603,6 +624,12 @@ async function renderOutbox() {
 }
 
 function wireOutbox() {
+  $("evict-ok").addEventListener("click", () => {
+    $("evict-banner").hidden = true;
+    try {
+      sessionStorage.setItem("tagtally-evict-seen", "1");
+    } catch {}
+  });
   $("sync-now").addEventListener("click", () => syncNow(true));
   $("save-backup").addEventListener("click", saveBackup);
   $("change-study").addEventListener("click", async () => {
@@ -633,6 +660,7 @@ async function syncNow(byHand) {
       return;
     }
     $("server-state").textContent = "answering";
+    checkForNewBuild();
     const pushed = await server.pushOutbox(state.device);
     const pulled = await server.pullStudy(state.study.id, state.device);
     await db.setMeta("last-sync", new Date().toISOString());
