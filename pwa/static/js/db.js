@@ -11,6 +11,7 @@ const NAME = "tagtally";
 const VERSION = 1;
 
 let dbPromise = null;
+let current = null; // the open connection, once dbPromise has resolved
 
 export function open() {
   if (dbPromise) return dbPromise;
@@ -25,11 +26,45 @@ export function open() {
       }
       if (!db.objectStoreNames.contains("meta")) db.createObjectStore("meta");
     };
-    req.onsuccess = () => resolve(req.result);
+    req.onsuccess = () => {
+      const db = req.result;
+      // The browser closes the connection itself when the site's storage
+      // is cleared or evicted, and asks it to close for a newer version in
+      // another tab: forget it, so the next call opens afresh.
+      db.onclose = () => forget(db);
+      db.onversionchange = () => {
+        db.close();
+        forget(db);
+      };
+      current = db;
+      resolve(db);
+    };
     req.onerror = () => reject(req.error);
     req.onblocked = () => reject(new Error("the app is open in another tab with an older version; close it"));
   });
   return dbPromise;
+}
+
+function forget(db) {
+  if (current === db) {
+    current = null;
+    dbPromise = null;
+  }
+}
+
+// transaction opens a transaction, reopening the database once if the
+// browser closed the connection under us (storage cleared while the app
+// was open): without this the app fails on every later read or save.
+async function transaction(stores, mode = "readonly", options) {
+  for (let attempt = 0; ; attempt++) {
+    const db = await open();
+    try {
+      return db.transaction(stores, mode, options);
+    } catch (e) {
+      if (attempt > 0 || e.name !== "InvalidStateError") throw e;
+      forget(db);
+    }
+  }
 }
 
 function done(tx) {
@@ -48,13 +83,11 @@ function result(req) {
 }
 
 export async function getMeta(key) {
-  const db = await open();
-  return result(db.transaction("meta").objectStore("meta").get(key));
+  return result((await transaction("meta")).objectStore("meta").get(key));
 }
 
 export async function setMeta(key, value) {
-  const db = await open();
-  const tx = db.transaction("meta", "readwrite");
+  const tx = await transaction("meta", "readwrite");
   tx.objectStore("meta").put(value, key);
   return done(tx);
 }
@@ -66,31 +99,26 @@ export async function setMeta(key, value) {
 // moment could lose a record the crew saw as saved. Browsers without the
 // option ignore it.
 export async function saveRecord(capture, entry) {
-  const db = await open();
-  const tx = db.transaction(["captures", "outbox"], "readwrite", { durability: "strict" });
+  const tx = await transaction(["captures", "outbox"], "readwrite", { durability: "strict" });
   tx.objectStore("captures").put(capture);
   tx.objectStore("outbox").put(entry);
   return done(tx);
 }
 
 export async function getOutboxEntry(id) {
-  const db = await open();
-  return result(db.transaction("outbox").objectStore("outbox").get(id));
+  return result((await transaction("outbox")).objectStore("outbox").get(id));
 }
 
 export async function allOutbox() {
-  const db = await open();
-  return result(db.transaction("outbox").objectStore("outbox").getAll());
+  return result((await transaction("outbox")).objectStore("outbox").getAll());
 }
 
 export async function getCapture(id) {
-  const db = await open();
-  return result(db.transaction("captures").objectStore("captures").get(id));
+  return result((await transaction("captures")).objectStore("captures").get(id));
 }
 
 export async function capturesForStudy(studyID) {
-  const db = await open();
-  const idx = db.transaction("captures").objectStore("captures").index("study");
+  const idx = (await transaction("captures")).objectStore("captures").index("study");
   return result(idx.getAll(IDBKeyRange.only(studyID)));
 }
 
@@ -99,8 +127,7 @@ export async function capturesForStudy(studyID) {
 // (revisions: [id, {id, parents, stamp, device, deleted}]), in one
 // transaction.
 export async function applySettled(confirmIDs, keepEntries, revisions) {
-  const db = await open();
-  const tx = db.transaction(["captures", "outbox"], "readwrite");
+  const tx = await transaction(["captures", "outbox"], "readwrite");
   const out = tx.objectStore("outbox");
   const caps = tx.objectStore("captures");
   for (const id of confirmIDs) out.delete(id);
@@ -123,8 +150,7 @@ export async function applySettled(confirmIDs, keepEntries, revisions) {
 // unsent local edit in the outbox is left alone: the crew's edit shows on
 // the phone until the server has it.
 export async function putPulled(records, pick) {
-  const db = await open();
-  const tx = db.transaction(["captures", "outbox"], "readwrite");
+  const tx = await transaction(["captures", "outbox"], "readwrite");
   const out = tx.objectStore("outbox");
   const caps = tx.objectStore("captures");
   for (const r of records) {
@@ -144,6 +170,5 @@ export async function putPulled(records, pick) {
 // allCaptures lists every record on the phone (for a full resend after
 // the server's feed changed epoch).
 export async function allCaptures() {
-  const db = await open();
-  return result(db.transaction("captures").objectStore("captures").getAll());
+  return result((await transaction("captures")).objectStore("captures").getAll());
 }

@@ -22,6 +22,7 @@ const state = {
   editing: null, // capture being edited, or null for a new record
   position: null, // last GPS fix {lat, lon, accuracy}
   syncing: false,
+  syncAsked: false, // "Sync now" was pressed during the running attempt
 };
 
 // ---------- start-up ----------
@@ -649,14 +650,21 @@ function syncSoon() {
   syncTimer = setTimeout(() => syncNow(false), 300);
 }
 
+// A press of "Sync now" while an automatic sync is running must not be
+// lost: it is remembered, and the running attempt reports its outcome as
+// if it had been pressed for (else a failure would pass silently).
 async function syncNow(byHand) {
+  const msg = $("sync-message");
+  if (byHand && state.study) {
+    state.syncAsked = true;
+    msg.textContent = "Trying the camp server…";
+  }
   if (state.syncing || !state.study) return;
   state.syncing = true;
-  const msg = $("sync-message");
   try {
     if (!(await server.serverAnswers())) {
       $("server-state").textContent = "not answering (records stay safe on this phone)";
-      if (byHand) msg.textContent = "The camp server does not answer. Your records are safe on this phone.";
+      if (state.syncAsked) msg.textContent = "The camp server does not answer. Your records are safe on this phone.";
       return;
     }
     $("server-state").textContent = "answering";
@@ -671,7 +679,12 @@ async function syncNow(byHand) {
     msg.textContent = `Sync stopped: ${e.message}. Nothing was lost; it will try again.`;
   } finally {
     state.syncing = false;
-    renderCounts();
+    state.syncAsked = false;
+    // Not awaited: the counts are cosmetic. A read cut short (the browser
+    // cleared storage at this moment) must not become an uncaught error;
+    // the next render shows the truth, and the vanished-records check
+    // tells the crew.
+    renderCounts().catch((e) => console.warn("counts not refreshed:", e));
   }
 }
 
