@@ -2,14 +2,16 @@ package server
 
 import (
 	"errors"
-	"net"
+	"fmt"
 	"net/http"
 	"strconv"
+	"strings"
 	stdsync "sync"
 
 	"github.com/labstack/echo/v4"
 
 	"tagtally/capture"
+	"tagtally/server/access"
 	tsync "tagtally/sync"
 )
 
@@ -86,6 +88,7 @@ func (s *Server) syncPush(c echo.Context) error {
 		}
 		return syncError(err)
 	}
+	batch.Restrict(tokenOf(c).Allows)
 	reply, err := eng.Push(batch)
 	if err != nil {
 		return err
@@ -112,6 +115,9 @@ func (s *Server) syncPull(c echo.Context) error {
 			return badRequest("limit", "limit must be a whole number from 1 to %d", tsync.MaxPullLimit)
 		}
 		req.Limit = n
+	}
+	if err := scopePull(tokenOf(c), &req); err != nil {
+		return err
 	}
 	page, err := eng.Pull(req)
 	if err != nil {
@@ -191,14 +197,10 @@ type peerRequest struct {
 // syncWithPeer answers POST /api/v1/sync/peer: this server pulls from and
 // pushes to another tagtally server now, resuming from its stored
 // checkpoints, and answers with what moved. `tagtally sync --server` uses
-// it when this server holds the data file. Like the backup download, it
-// is answered only for requests from this machine: it makes the server
+// it when this server holds the data file. Like the backup download, its
+// rule admits only a coordinator on this machine: it makes the server
 // contact an address the caller chooses.
 func (s *Server) syncWithPeer(c echo.Context) error {
-	host, _, err := net.SplitHostPort(c.Request().RemoteAddr)
-	if ip := net.ParseIP(host); err != nil || ip == nil || !ip.IsLoopback() {
-		return echo.NewHTTPError(http.StatusForbidden, "a peer sync can be started only on the server's own machine: run `tagtally sync` there")
-	}
 	eng, err := s.engine()
 	if err != nil {
 		return err
@@ -218,4 +220,17 @@ func (s *Server) syncWithPeer(c echo.Context) error {
 		return err
 	}
 	return c.JSON(http.StatusOK, rep)
+}
+
+// scopePull keeps a pull within the token's studies: a study outside them
+// is refused, and a pull of all studies gets only the token's.
+func scopePull(tok *access.Token, req *tsync.PullRequest) error {
+	if tok.AllStudies() {
+		return nil
+	}
+	if req.Study != "" && !tok.Allows(req.Study) {
+		return fmt.Errorf("%w: this token is for study %s, not %q", access.ErrDenied, strings.Join(tok.Studies, ", "), req.Study)
+	}
+	req.Studies = tok.Studies
+	return nil
 }

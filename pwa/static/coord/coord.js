@@ -16,6 +16,8 @@ function h(tag, attrs = {}, ...kids) {
   for (const [k, v] of Object.entries(attrs)) {
     if (v === undefined || v === null || v === false) continue;
     if (k === "class") e.className = v;
+    // Through the CSSOM: the server's CSP refuses inline style attributes.
+    else if (k === "style") e.style.cssText = v;
     else if (k.startsWith("on")) e.addEventListener(k.slice(2), v);
     else if (k === "text") e.textContent = v;
     else e.setAttribute(k, v === true ? "" : String(v));
