@@ -1,6 +1,7 @@
 package server
 
 import (
+	"bytes"
 	"encoding/json"
 	"errors"
 	"io"
@@ -8,6 +9,7 @@ import (
 	"net/http"
 	"strconv"
 	"strings"
+	"unicode/utf8"
 
 	"github.com/labstack/echo/v4"
 )
@@ -22,7 +24,20 @@ func bindJSON(c echo.Context, v any) error {
 			return badRequest("", "send JSON with Content-Type: application/json (got %q)", ct)
 		}
 	}
-	dec := json.NewDecoder(r.Body)
+	// Read the whole (size-limited) body first: encoding/json would turn
+	// invalid UTF-8 into U+FFFD without a word, changing what was sent.
+	body, err := io.ReadAll(r.Body)
+	if err != nil {
+		var mbe *http.MaxBytesError
+		if errors.As(err, &mbe) {
+			return err
+		}
+		return badRequest("", "the request body could not be read: %v", err)
+	}
+	if !utf8.Valid(body) {
+		return badRequest("", "the body is not valid UTF-8 text (at byte %d); send JSON in UTF-8", invalidUTF8At(body))
+	}
+	dec := json.NewDecoder(bytes.NewReader(body))
 	dec.DisallowUnknownFields()
 	if err := dec.Decode(v); err != nil {
 		return decodeError(err)
@@ -35,6 +50,18 @@ func bindJSON(c echo.Context, v any) error {
 		return badRequest("", "the body has more after the JSON value; send exactly one JSON value")
 	}
 	return nil
+}
+
+// invalidUTF8At is the offset of the first byte that is not UTF-8.
+func invalidUTF8At(b []byte) int {
+	for i := 0; i < len(b); {
+		r, n := utf8.DecodeRune(b[i:])
+		if r == utf8.RuneError && n == 1 {
+			return i
+		}
+		i += n
+	}
+	return len(b)
 }
 
 func decodeError(err error) error {

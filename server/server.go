@@ -53,6 +53,11 @@ func New(store *capture.Store, cfg Config) (*Server, error) {
 		Skipper: func(c echo.Context) bool { return c.Path() == backupPath || c.Path() == exportPath },
 	}))
 	for _, r := range s.routes() {
+		if r.need.name == "" {
+			// The zero rule would let anyone in: every route says what
+			// it needs.
+			return nil, fmt.Errorf("%w: route %s %s has no access rule", ErrConfig, r.method, r.path)
+		}
 		e.Add(r.method, r.path, r.handler, s.guard(r))
 	}
 	s.echo = e
