@@ -7,6 +7,7 @@ import (
 	"io"
 	"mime"
 	"net/http"
+	"reflect"
 	"strconv"
 	"strings"
 	"unicode/utf8"
@@ -80,7 +81,7 @@ func decodeError(err error) error {
 	case errors.As(err, &syn):
 		return badRequest("", "malformed JSON at byte %d: %v", syn.Offset, syn)
 	case errors.As(err, &typ):
-		return badRequest(typ.Field, "field %q must be a JSON %s, not %s", typ.Field, typ.Type.Kind(), typ.Value)
+		return badRequest(typ.Field, "field %q must be a JSON %s, not %s", typ.Field, jsonKind(typ.Type.Kind()), typ.Value)
 	}
 	if f, ok := strings.CutPrefix(err.Error(), "json: unknown field "); ok {
 		f, _ = strconv.Unquote(f)
@@ -100,4 +101,24 @@ func queryInt(c echo.Context, name string) (int, error) {
 		return 0, badRequest(name, "query parameter %s must be a whole number, 0 or more; got %q", name, s)
 	}
 	return n, nil
+}
+
+// jsonKind names a Go kind the way JSON does, for error messages.
+func jsonKind(k reflect.Kind) string {
+	switch k {
+	case reflect.Slice, reflect.Array:
+		return "array"
+	case reflect.Map, reflect.Struct:
+		return "object"
+	case reflect.Bool:
+		return "true or false"
+	case reflect.String:
+		return "string"
+	case reflect.Int, reflect.Int8, reflect.Int16, reflect.Int32, reflect.Int64,
+		reflect.Uint, reflect.Uint8, reflect.Uint16, reflect.Uint32, reflect.Uint64:
+		return "whole number"
+	case reflect.Float32, reflect.Float64:
+		return "number"
+	}
+	return k.String()
 }

@@ -27,7 +27,7 @@ type testServer struct {
 	token string
 }
 
-func newTestServer(t *testing.T, edit func(*Config)) *testServer {
+func newTestServer(t testing.TB, edit func(*Config)) *testServer {
 	t.Helper()
 	store := storetest.Open(t)
 	st := storetest.Study()
