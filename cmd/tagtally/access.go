@@ -251,4 +251,3 @@ func (a accessDesk) revoke(w io.Writer, id string) error {
 	fmt.Fprintf(w, "Revoked %s (%s %s): it is refused from its next request; its records stay.\n", tok.ID, tok.Kind, tok.Label)
 	return nil
 }
-
