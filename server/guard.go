@@ -66,7 +66,8 @@ func stateChanging(method string) bool {
 
 // guard is the access middleware for one route: it checks the rule,
 // puts the token in the context for the handler, and writes an audit
-// entry for every state-changing request once it is answered.
+// entry for every state-changing request once it is answered (with a
+// valid token, or at the code exchanges).
 func (s *Server) guard(r route) echo.MiddlewareFunc {
 	return func(next echo.HandlerFunc) echo.HandlerFunc {
 		return func(c echo.Context) error {
@@ -75,7 +76,17 @@ func (s *Server) guard(r route) echo.MiddlewareFunc {
 				err = next(c)
 			}
 			if stateChanging(c.Request().Method) {
-				s.audit(c, r, tok, err)
+				if tok == nil {
+					tok = tokenOf(c) // a claim or join names the token it made
+				}
+				// Requests without a valid token are audited only where
+				// attempts are limited (claim, join): elsewhere anyone on
+				// the network could fill the data file with refusals.
+				if tok != nil || r.need.attempt {
+					s.audit(c, r, tok, err)
+				} else {
+					s.log.Info("refused a change without a valid token", "method", c.Request().Method, "path", c.Request().URL.Path, "client", clientIP(c.Request()))
+				}
 			}
 			return err
 		}
