@@ -48,6 +48,9 @@ var (
 	ruleSyncPush     = rule{name: "coordinator, recorder or peer (their studies only)", roles: []access.Role{access.Coordinator, access.Recorder, access.Peer}}
 )
 
+// maxCodeBody caps the body of a claim or join request.
+const maxCodeBody = 4096
+
 // Where a token travels.
 const (
 	// SessionCookie holds a coordinator's browser session token.
@@ -105,6 +108,9 @@ func (s *Server) admit(c echo.Context, need rule) (*access.Token, error) {
 			c.Response().Header().Set("Retry-After", fmt.Sprint(int(wait.Seconds())+1))
 			return nil, access.ErrTooManyAttempts
 		}
+		// Anyone may send these: a code and a name fit in a few hundred
+		// bytes, so no more is read.
+		req.Body = http.MaxBytesReader(c.Response(), req.Body, maxCodeBody)
 	}
 	if len(need.roles) == 0 {
 		return nil, nil
