@@ -35,8 +35,9 @@ type Entry struct {
 // maxPathLen bounds what an entry keeps of a request path.
 const maxPathLen = 300
 
-// Record appends an entry. It uses the store's Batch: many phones pushing
-// at once share one commit for their entries.
+// Record appends an entry, in its own transaction. Not the store's Batch:
+// with one writer at a time, Batch waits out bbolt's batch delay on every
+// request (measured: a capture write took 17 times as long).
 func (s *Service) Record(e Entry) error {
 	if e.Time.IsZero() {
 		e.Time = s.now().UTC()
@@ -46,7 +47,7 @@ func (s *Service) Record(e Entry) error {
 			*f = (*f)[:maxPathLen]
 		}
 	}
-	err := s.store.Batch(func(tx *capture.Tx) error {
+	err := s.store.Update(func(tx *capture.Tx) error {
 		b, err := tx.Bucket(bucketAudit)
 		if err != nil {
 			return err

@@ -332,7 +332,7 @@ func getToken(tx *capture.Tx, key []byte) (*storedToken, error) {
 // touch writes LastUsed; the token may have been revoked since it was
 // read, in which case it stays revoked (the request in flight finishes).
 func (s *Service) touch(key []byte, now time.Time) error {
-	return s.store.Batch(func(tx *capture.Tx) error {
+	return s.store.Update(func(tx *capture.Tx) error {
 		st, err := getToken(tx, key)
 		if err != nil {
 			return err

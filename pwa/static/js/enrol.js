@@ -17,6 +17,14 @@ export function codeFromAddress() {
   return decodeURIComponent(m[1]);
 }
 
+let joins = 0;
+
+// joinCount changes with every join on this page: a request that started
+// before the latest join and was refused says nothing about the new token.
+export function joinCount() {
+  return joins;
+}
+
 export async function hasToken() {
   return Boolean(await db.getMeta("token"));
 }
@@ -40,6 +48,7 @@ export async function join(code, deviceName) {
     throw new Error(body && body.error ? body.error : `the camp server answered ${res.status}`);
   }
   await db.setMeta("token", body.token);
+  joins++;
   await db.setMeta("enrolled", { id: body.id, study: (body.studies || [])[0], role: body.role, label: body.label });
   hideRevoked();
   return body;

@@ -646,6 +646,7 @@ async function syncNow(byHand) {
   if (state.syncing || !state.study) return;
   state.syncing = true;
   const msg = $("sync-message");
+  const joinMark = enrol.joinCount();
   try {
     if (!(await server.serverAnswers())) {
       $("server-state").textContent = "not answering (records stay safe on this phone)";
@@ -660,7 +661,7 @@ async function syncNow(byHand) {
     await reloadCaptures();
     if (!$("screen-outbox").hidden) await renderOutbox();
   } catch (e) {
-    if (e.status === 401) enrol.showRevoked(() => showEnrol());
+    if (e.status === 401 && enrol.joinCount() === joinMark) enrol.showRevoked(() => showEnrol());
     msg.textContent = `Sync stopped: ${e.message}. Nothing was lost; it will try again.`;
   } finally {
     state.syncing = false;
