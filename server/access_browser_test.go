@@ -2,7 +2,10 @@ package server
 
 import (
 	"strings"
+	stdsync "sync"
 	"testing"
+
+	cdplog "github.com/chromedp/cdproto/log"
 
 	"github.com/chromedp/chromedp"
 	"github.com/chromedp/chromedp/kb"
@@ -10,6 +13,30 @@ import (
 	"tagtally/demo"
 	"tagtally/server/access"
 )
+
+// watchCSP fails the test if the browser reports a Content-Security-Policy
+// violation: an inline script, style attribute or outside resource that
+// the server's policy blocked would silently break the page.
+func watchCSP(p page) {
+	var mu stdsync.Mutex
+	var seen []string
+	if err := chromedp.Listen(p.ctx, func(ev any) {
+		if e, ok := ev.(*cdplog.EventEntryAdded); ok && strings.Contains(e.Entry.Text, "Content Security Policy") {
+			mu.Lock()
+			seen = append(seen, e.Entry.Text)
+			mu.Unlock()
+		}
+	}); err != nil {
+		p.t.Fatal(err)
+	}
+	p.t.Cleanup(func() {
+		mu.Lock()
+		defer mu.Unlock()
+		for _, s := range seen {
+			p.t.Errorf("CSP violation: %s", s)
+		}
+	})
+}
 
 // TestPhoneJoinsAndIsRevokedInBrowser: a phone opens the join link the
 // coordinator's page shows, gets its token and the study; after the
@@ -22,6 +49,7 @@ func TestPhoneJoinsAndIsRevokedInBrowser(t *testing.T) {
 		t.Fatal(err)
 	}
 	p := page{t: t, ctx: browser(t), dir: screenshotDir(t)}
+	watchCSP(p)
 	p.do(chromedp.EmulateViewport(412, 915), chromedp.Navigate(ds.URL+"/#join="+jc.Code),
 		chromedp.WaitVisible(chromedp.CSS(`#screen-cautions`)))
 	if h := evalAs[string](p, `location.hash`); h != "" {
@@ -73,6 +101,7 @@ func TestPhoneJoinsAndIsRevokedInBrowser(t *testing.T) {
 func TestAccessPageInBrowser(t *testing.T) {
 	ds := newDemoServer(t)
 	p := page{t: t, ctx: browser(t), dir: screenshotDir(t)}
+	watchCSP(p)
 	p.signIn(ds.srv, ds.URL)
 	p.show(ds.URL, "access")
 	p.do(chromedp.Click(chromedp.CSS(`#make-recorder-code`)), chromedp.WaitVisible(chromedp.CSS(`#join-code-text`)))

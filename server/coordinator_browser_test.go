@@ -181,6 +181,7 @@ func TestCoordinatorPagesInBrowser(t *testing.T) {
 	conflictID := makeConflict(t, ds)
 	hs := ds.Server // the API and the embedded app, as the camp server serves them
 	p := page{t: t, ctx: browser(t), dir: screenshotDir(t)}
+	watchCSP(p)
 	p.signIn(ds.srv, hs.URL)
 
 	// Data checks: the demo's five deliberate problems and the conflict.
