@@ -38,6 +38,14 @@ authority once, from the setup page on the plain-HTTP port (the address
 ends in /setup; it shows a QR code of the HTTPS address and the steps for
 Android and iPhone). On this computer itself plain HTTP is enough.
 
+Nobody can use the server without being let in. At each start serve
+prints a one-time coordinator link (http://localhost:PORT/coord/#claim=...):
+open it on this computer to sign the browser in; it works once, for 12
+hours. On the coordinator's Access page, make join codes for phones (a QR
+code each phone scans), revoke lost phones and make tokens for other
+servers. While it runs, serve keeps a token for the tagtally commands on
+this computer beside the data file (DATA.token, readable only by you).
+
 With --demo it first adds the invented demonstration study (a wood-mouse
 trapping grid) to the data file, so there is something to look at.`
 

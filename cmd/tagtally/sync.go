@@ -41,7 +41,7 @@ func runSync(args []string, stdout io.Writer) error {
 	fs.SetOutput(stdout)
 	cfg.addDataFlag(fs)
 	peer := fs.String("peer", "", "base URL of the other tagtally server, e.g. http://10.0.0.2:8080 (required)")
-	token := fs.String("token", os.Getenv("TAGTALLY_PEER_TOKEN"), "access token for the other server (environment: TAGTALLY_PEER_TOKEN)")
+	token := fs.String("token", os.Getenv("TAGTALLY_PEER_TOKEN"), "the peer token the other server's coordinator made for this one (Access page, or tagtally access token --kind peer there; environment: TAGTALLY_PEER_TOKEN)")
 	study := fs.String("study", "", "sync only this study (default: all)")
 	page := fs.Int("page", tsync.DefaultPullLimit, "revisions per request")
 	via := fs.String("server", "", "address of the tagtally server running on this machine that holds the data file, e.g. http://127.0.0.1:8080")
