@@ -53,8 +53,9 @@ type JoinCode struct {
 const joinAlphabet = "0123456789ABCDEFGHJKMNPQRSTVWXYZ"
 
 // joinLen is the number of characters of a join code: 60 bits. With the
-// attempt limits (DefaultLimits) and a 15-minute life, the chance that
-// guessing finds a live code is negligible (about 2^-48 per code).
+// attempt limits (DefaultLimits: 60 a minute in all) a code lives through
+// at most 900 guesses in its 15 minutes, so the chance that guessing finds
+// it is below 900 / 2^60, about 2^-50.
 const joinLen = 12
 
 func newJoinCode() string {
