@@ -4,6 +4,7 @@ import (
 	"strings"
 	stdsync "sync"
 	"testing"
+	"time"
 
 	cdplog "github.com/chromedp/cdproto/log"
 
@@ -74,12 +75,23 @@ func TestPhoneJoinsAndIsRevokedInBrowser(t *testing.T) {
 	if _, err := ds.srv.Access().Revoke(dev.ID); err != nil {
 		t.Fatal(err)
 	}
-	p.do(chromedp.Click(chromedp.CSS(`#accept-cautions`)),
+	// A record saved after the revoke waits in the outbox.
+	// Buttons low on the screen may sit under the tab bar at this size:
+	// press them from the page, as a tap on them does.
+	evalAs[bool](p, `(document.getElementById("accept-cautions").click(), true)`)
+	p.do(chromedp.WaitVisible(chromedp.CSS(`#tag`)),
+		chromedp.SetValue(chromedp.CSS(`#tag`), "QH-0999"),
+	)
+	evalAs[bool](p, `(document.getElementById("capture-form").requestSubmit(), true)`)
+	p.do(chromedp.WaitVisible(chromedp.CSS(`#tab-count`)),
 		chromedp.Click(chromedp.CSS(`button[data-go="outbox"]`)),
 		chromedp.Click(chromedp.CSS(`#sync-now`)),
 		chromedp.WaitVisible(chromedp.CSS(`#revoked-banner`)))
 	if txt := p.text("#revoked-banner"); !strings.Contains(txt, "new join code") || !strings.Contains(txt, "outbox") {
 		t.Errorf("revoked notice: %q", txt)
+	}
+	if n := p.text("#outbox-count"); n != "1" {
+		t.Errorf("outbox after the refused sync holds %q records, want 1", n)
 	}
 	p.shot("phone-revoked.png", false)
 	// A new code typed by hand brings it back.
@@ -92,6 +104,13 @@ func TestPhoneJoinsAndIsRevokedInBrowser(t *testing.T) {
 		chromedp.WaitVisible(chromedp.CSS(`#screen-record`)))
 	if v := evalAs[bool](p, `document.getElementById("revoked-banner").hidden`); !v {
 		t.Errorf("the revoked notice stays after joining again")
+	}
+	// Joined again, the phone sends the record that waited.
+	for deadline := time.Now().Add(20 * time.Second); countCaptures(t, ds, "QH-0999") == 0 && time.Now().Before(deadline); {
+		time.Sleep(50 * time.Millisecond)
+	}
+	if n := countCaptures(t, ds, "QH-0999"); n != 1 {
+		t.Errorf("the record saved while cut off reached the server %d times, want 1", n)
 	}
 }
 
@@ -128,4 +147,19 @@ func TestAccessPageInBrowser(t *testing.T) {
 	if txt := p.text("#audit-table"); !strings.Contains(txt, "revoke") || !strings.Contains(txt, "coordinator (browser)") {
 		t.Errorf("audit log on the page lacks the revoke: %s", txt)
 	}
+}
+
+func countCaptures(t *testing.T, ds *demoServer, tag string) int {
+	t.Helper()
+	all, err := ds.store.Captures(demo.StudyID, true)
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := 0
+	for _, c := range all {
+		if c.TagID == tag {
+			n++
+		}
+	}
+	return n
 }

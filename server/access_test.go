@@ -177,6 +177,15 @@ func TestJoinGuessingHitsTheLimit(t *testing.T) {
 	if rec.Code != 429 || rec.Header().Get("Retry-After") == "" || !strings.Contains(rec.Body.String(), "too many attempts") {
 		t.Fatalf("attempt past the limit = %d %v %s, want 429 with Retry-After", rec.Code, rec.Header(), rec.Body)
 	}
+	// Coordinator-link claims count against the same limit.
+	claim := httptest.NewRequest("POST", "/api/v1/access/claim", strings.NewReader(`{"code":"`+strings.Repeat("A", 43)+`"}`))
+	claim.Header.Set("Content-Type", "application/json")
+	claim.RemoteAddr = "192.0.2.50:40001"
+	crec := httptest.NewRecorder()
+	ts.srv.Handler().ServeHTTP(crec, claim)
+	if crec.Code != 429 {
+		t.Errorf("a claim from the same address past the limit = %d, want 429", crec.Code)
+	}
 	// Many addresses: the overall limit.
 	refused := 0
 	for i := 0; i < lim.Overall+5; i++ {
