@@ -430,5 +430,8 @@ func TestSecurityHeadersOnEveryAnswer(t *testing.T) {
 			h.Get("X-Frame-Options") != "DENY" || h.Get("X-Content-Type-Options") != "nosniff" || h.Get("Referrer-Policy") != "no-referrer" {
 			t.Errorf("GET %s (%d): headers %v", p, a.status, h)
 		}
+		if strings.HasPrefix(p, "/api/") && h.Get("Cache-Control") != "no-store" {
+			t.Errorf("GET %s: Cache-Control %q, want no-store", p, h.Get("Cache-Control"))
+		}
 	}
 }

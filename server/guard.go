@@ -211,6 +211,10 @@ func securityHeaders(next echo.HandlerFunc) echo.HandlerFunc {
 		h.Set("X-Frame-Options", "DENY")
 		h.Set("X-Content-Type-Options", "nosniff")
 		h.Set("Referrer-Policy", "no-referrer")
+		if strings.HasPrefix(c.Request().URL.Path, "/api/") {
+			// API answers may carry tokens and records: never cached.
+			h.Set("Cache-Control", "no-store")
+		}
 		return next(c)
 	}
 }
