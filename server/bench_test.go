@@ -11,6 +11,7 @@ import (
 
 	"tagtally/capture"
 	"tagtally/capture/storetest"
+	"tagtally/server/access"
 )
 
 // Compare the two in one run: the ratio is the cost of HTTP, JSON and
@@ -30,12 +31,14 @@ func BenchmarkCreateCaptureAPI(b *testing.B) {
 		b.Fatal(err)
 	}
 	h := srv.Handler()
+	secret, _ := issue(b, srv, access.NewToken{Kind: access.KindCoordinator, Label: "bench"})
 	path := "/api/v1/studies/" + st.ID + "/captures"
 	b.ResetTimer()
 	for i := 0; i < b.N; i++ {
 		body := strings.Replace(validCapture, "BF-0001", fmt.Sprintf("BF-%04d", i%10000), 1)
 		req := httptest.NewRequest("POST", path, strings.NewReader(body))
 		req.Header.Set("Content-Type", "application/json")
+		req.Header.Set("Authorization", "Bearer "+secret)
 		rec := httptest.NewRecorder()
 		h.ServeHTTP(rec, req)
 		if rec.Code != 201 {

@@ -57,6 +57,7 @@ func (s *Server) createCapture(c echo.Context) error {
 	if err != nil {
 		return err
 	}
+	c.Set(ctxAuditRecord, stored.ID)
 	c.Response().Header().Set(echo.HeaderLocation, c.Request().URL.Path+"/"+stored.ID)
 	return c.JSON(http.StatusCreated, captureAnswer{stored, orEmpty(fs)})
 }

@@ -35,6 +35,10 @@ type Config struct {
 	ShutdownTimeout time.Duration
 	// Version is the tagtally version named in exported workbooks.
 	Version string
+	// PhoneAddress returns the base address phones open (the camp's
+	// HTTPS address), for join links; nil or "" uses the address the
+	// coordinator's request came to.
+	PhoneAddress func() string
 	// Logger receives request errors and server events; nil means
 	// slog.Default().
 	Logger *slog.Logger

@@ -122,6 +122,17 @@ func (p page) do(steps ...chromedp.Action[chromedp.Void]) {
 	}
 }
 
+// signIn follows a fresh coordinator link, as the coordinator does with
+// the one tagtally serve prints, and waits for the signed-in pages.
+func (p page) signIn(srv *Server, base string) {
+	p.t.Helper()
+	code, err := srv.Access().NewClaim()
+	if err != nil {
+		p.t.Fatal(err)
+	}
+	p.do(chromedp.Navigate(ClaimURL(base, code)), chromedp.WaitVisible(chromedp.CSS(`main[data-shown="summary"]`)))
+}
+
 // show navigates to a view of the coordinator's pages and waits until it
 // has loaded.
 func (p page) show(base, view string) {
@@ -180,6 +191,8 @@ func TestCoordinatorPagesInBrowser(t *testing.T) {
 	conflictID := makeConflict(t, ds)
 	hs := ds.Server // the API and the embedded app, as the camp server serves them
 	p := page{t: t, ctx: browser(t), dir: screenshotDir(t)}
+	watchCSP(p)
+	p.signIn(ds.srv, hs.URL)
 
 	// Data checks: the demo's five deliberate problems and the conflict.
 	p.show(hs.URL, "checks")

@@ -27,7 +27,16 @@
 // has committed, and bbolt syncs the file on commit: an acknowledged write
 // survives a killed process or a power cut.
 //
-// Caveat: there is no access control yet; anyone on the network can read
-// and write. GET /api/v1/backup is therefore answered only for requests
-// from this machine (loopback).
+//   - guard.go is access control: each route's row names its rule (the
+//     roles that may use it, whether :study must be in the token's scope,
+//     loopback only), and one middleware checks it on every request,
+//     reading the token from the store each time (package access), so a
+//     revoke takes effect at once. A browser session comes as a cookie
+//     and must send its CSRF token with every change; every
+//     state-changing request with a token is written to the audit log.
+//     Every answer carries a CSP allowing only the app's own scripts,
+//     frame denial, nosniff and no referrer.
+//
+// Caveat: the backup and the peer sync stay answered only for requests
+// from this machine (loopback), on top of needing the coordinator.
 package server

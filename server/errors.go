@@ -9,6 +9,7 @@ import (
 	"github.com/labstack/echo/v4"
 
 	"tagtally/capture"
+	"tagtally/server/access"
 	tsync "tagtally/sync"
 )
 
@@ -44,6 +45,18 @@ func status(err error) (int, errorBody) {
 	switch {
 	case errors.As(err, &mbe):
 		return http.StatusRequestEntityTooLarge, errorBody{Error: fmt.Sprintf("request body is larger than the limit of %d bytes", mbe.Limit)}
+	case errors.Is(err, access.ErrNoCredentials):
+		return http.StatusUnauthorized, errorBody{Error: "sign in first: phones join with a code from the coordinator; the coordinator opens the link that tagtally serve prints (or runs tagtally access link)"}
+	case errors.Is(err, access.ErrBadToken):
+		return http.StatusUnauthorized, errorBody{Error: "this access token was revoked or is not known here: ask the coordinator for a new join code (records waiting on a phone stay there)"}
+	case errors.Is(err, access.ErrBadCode):
+		return http.StatusUnauthorized, errorBody{Error: "this code does not work: it may be mistyped, already used or expired; ask the coordinator for a new one"}
+	case errors.Is(err, access.ErrTooManyAttempts):
+		return http.StatusTooManyRequests, errorBody{Error: "too many attempts from here; wait a minute and try again"}
+	case errors.Is(err, access.ErrDenied):
+		return http.StatusForbidden, errorBody{Error: err.Error()}
+	case errors.Is(err, access.ErrInvalid):
+		return http.StatusUnprocessableEntity, errorBody{Error: err.Error()}
 	case errors.As(err, &re):
 		return http.StatusBadRequest, errorBody{Error: re.msg, Field: re.field}
 	// Sync's sentinels come before the store's: a sync error names the

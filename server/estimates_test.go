@@ -39,6 +39,7 @@ func newDemoServer(t *testing.T) *demoServer {
 	}
 	hs := httptest.NewServer(srv.Handler())
 	t.Cleanup(hs.Close)
+	signIn(t, srv, hs)
 	return &demoServer{Server: hs, srv: srv, store: store}
 }
 

@@ -22,10 +22,11 @@ func (s *Server) index(c echo.Context) error {
 		Method string `json:"method"`
 		Path   string `json:"path"`
 		About  string `json:"about"`
+		Access string `json:"access"`
 	}
 	var out []entry
 	for _, r := range s.routes() {
-		out = append(out, entry{r.method, r.path, r.about})
+		out = append(out, entry{r.method, r.path, r.about, r.need.name})
 	}
 	return c.JSON(http.StatusOK, map[string]any{"endpoints": out})
 }

@@ -13,6 +13,7 @@ import (
 	"github.com/labstack/echo/v4/middleware"
 
 	"tagtally/capture"
+	"tagtally/server/access"
 )
 
 // Server is the HTTP API over one capture store. Handlers are its methods.
@@ -21,6 +22,9 @@ type Server struct {
 	store *capture.Store
 	log   *slog.Logger
 	echo  *echo.Echo
+	// access checks every route's rule (guard.go) and keeps tokens,
+	// codes and the audit log in the store's file.
+	access *access.Service
 
 	// studyMu serialises read-modify-write edits of studies (editStudy).
 	studyMu sync.Mutex
@@ -37,18 +41,24 @@ func New(store *capture.Store, cfg Config) (*Server, error) {
 	if err := cfg.Validate(); err != nil {
 		return nil, err
 	}
-	s := &Server{cfg: cfg, store: store, log: cfg.Logger}
+	s := &Server{cfg: cfg, store: store, log: cfg.Logger, access: access.New(store)}
 	e := echo.New()
 	e.HideBanner, e.HidePort = true, true
 	e.HTTPErrorHandler = s.handleError
 	e.Use(middleware.RecoverWithConfig(middleware.RecoverConfig{DisablePrintStack: true, DisableErrorHandler: true}))
+	e.Use(securityHeaders)
 	e.Use(limitBody(cfg.MaxBodyBytes))
 	e.Use(middleware.ContextTimeoutWithConfig(middleware.ContextTimeoutConfig{
 		Timeout: cfg.RequestTimeout,
 		Skipper: func(c echo.Context) bool { return c.Path() == backupPath || c.Path() == exportPath },
 	}))
 	for _, r := range s.routes() {
-		e.Add(r.method, r.path, r.handler)
+		if r.need.name == "" {
+			// The zero rule would let anyone in: every route says what
+			// it needs.
+			return nil, fmt.Errorf("%w: route %s %s has no access rule", ErrConfig, r.method, r.path)
+		}
+		e.Add(r.method, r.path, r.handler, s.guard(r))
 	}
 	s.echo = e
 	return s, nil

@@ -12,18 +12,22 @@ import (
 
 	"tagtally/capture"
 	"tagtally/capture/storetest"
+	"tagtally/server/access"
 )
 
 // testServer is an httptest server over a fresh store holding
 // storetest.Study(), with the server's log captured in logs.
 type testServer struct {
 	*httptest.Server
+	srv   *Server
 	store *capture.Store
 	study *capture.Study
 	logs  *bytes.Buffer
+	// token is a coordinator token; the server's Client() sends it.
+	token string
 }
 
-func newTestServer(t *testing.T, edit func(*Config)) *testServer {
+func newTestServer(t testing.TB, edit func(*Config)) *testServer {
 	t.Helper()
 	store := storetest.Open(t)
 	st := storetest.Study()
@@ -42,7 +46,43 @@ func newTestServer(t *testing.T, edit func(*Config)) *testServer {
 	}
 	hs := httptest.NewServer(srv.Handler())
 	t.Cleanup(hs.Close)
-	return &testServer{Server: hs, store: store, study: st, logs: logs}
+	return &testServer{Server: hs, srv: srv, store: store, study: st, logs: logs, token: signIn(t, srv, hs)}
+}
+
+// issue makes a token of a kind (and role and studies for devices and
+// peers) on srv and returns its secret and record.
+func issue(t testing.TB, srv *Server, n access.NewToken) (string, *access.Token) {
+	t.Helper()
+	secret, tok, err := srv.Access().Issue(n)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return secret, tok
+}
+
+// signIn issues a coordinator token for scripts and makes hs.Client()
+// send it on every request that carries no Authorization header of its
+// own. It returns the token.
+func signIn(t testing.TB, srv *Server, hs *httptest.Server) string {
+	t.Helper()
+	secret, _ := issue(t, srv, access.NewToken{Kind: access.KindCoordinator, Label: "test coordinator"})
+	c := hs.Client()
+	c.Transport = bearer{c.Transport, secret}
+	return secret
+}
+
+// bearer adds "Authorization: Bearer token" to requests without one.
+type bearer struct {
+	base  http.RoundTripper
+	token string
+}
+
+func (b bearer) RoundTrip(r *http.Request) (*http.Response, error) {
+	if r.Header.Get("Authorization") == "" {
+		r = r.Clone(r.Context())
+		r.Header.Set("Authorization", "Bearer "+b.token)
+	}
+	return b.base.RoundTrip(r)
 }
 
 // answer is a decoded reply.
@@ -337,9 +377,12 @@ func TestInternalErrorIsGeneric(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	secret, _ := issue(t, srv, access.NewToken{Kind: access.KindCoordinator, Label: "test"})
 	store.Close()
 	rec := httptest.NewRecorder()
-	srv.Handler().ServeHTTP(rec, httptest.NewRequest("GET", "/api/v1/studies", nil))
+	req := httptest.NewRequest("GET", "/api/v1/studies", nil)
+	req.Header.Set("Authorization", "Bearer "+secret)
+	srv.Handler().ServeHTTP(rec, req)
 	if rec.Code != 500 || !strings.Contains(rec.Body.String(), "server log") || strings.Contains(rec.Body.String(), "database") {
 		t.Errorf("reply %d %s; want a generic 500", rec.Code, rec.Body)
 	}

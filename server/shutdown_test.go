@@ -17,6 +17,7 @@ import (
 
 	"tagtally/capture"
 	"tagtally/capture/storetest"
+	"tagtally/server/access"
 )
 
 // TestShutdownFinishesInFlightWrite starts a capture upload, begins a
@@ -35,6 +36,7 @@ func TestShutdownFinishesInFlightWrite(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	secret, _ := issue(t, srv, access.NewToken{Kind: access.KindCoordinator, Label: "test"})
 	ln, err := net.Listen("tcp", cfg.Addr)
 	if err != nil {
 		t.Fatal(err)
@@ -55,8 +57,8 @@ func TestShutdownFinishesInFlightWrite(t *testing.T) {
 	// still waiting in the listener's queue) when the shutdown begins.
 	body := validCapture
 	half := len(body) / 2
-	fmt.Fprintf(conn, "POST /api/v1/studies/%s/captures HTTP/1.1\r\nHost: %s\r\nContent-Type: application/json\r\nContent-Length: %d\r\nExpect: 100-continue\r\n\r\n",
-		st.ID, addr, len(body))
+	fmt.Fprintf(conn, "POST /api/v1/studies/%s/captures HTTP/1.1\r\nHost: %s\r\nAuthorization: Bearer %s\r\nContent-Type: application/json\r\nContent-Length: %d\r\nExpect: 100-continue\r\n\r\n",
+		st.ID, addr, secret, len(body))
 	br := bufio.NewReader(conn)
 	if resp, err := http.ReadResponse(br, nil); err != nil || resp.StatusCode != http.StatusContinue {
 		t.Fatalf("expected 100 Continue, got %v, %v", resp, err)

@@ -14,10 +14,15 @@ func (s *Server) listStudies(c echo.Context) error {
 	if err != nil {
 		return err
 	}
-	if list == nil {
-		list = []capture.Study{}
+	// A device or peer sees only the studies its token reaches.
+	tok := tokenOf(c)
+	mine := []capture.Study{}
+	for _, st := range list {
+		if tok.Allows(st.ID) {
+			mine = append(mine, st)
+		}
 	}
-	return c.JSON(http.StatusOK, map[string]any{"studies": list})
+	return c.JSON(http.StatusOK, map[string]any{"studies": mine})
 }
 
 func (s *Server) createStudy(c echo.Context) error {

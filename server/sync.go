@@ -1,14 +1,16 @@
 package server
 
 import (
-	"net"
+	"fmt"
 	"net/http"
 	"strconv"
+	"strings"
 	stdsync "sync"
 
 	"github.com/labstack/echo/v4"
 
 	"tagtally/capture"
+	"tagtally/server/access"
 	tsync "tagtally/sync"
 )
 
@@ -68,6 +70,7 @@ func (s *Server) syncPush(c echo.Context) error {
 	if err != nil {
 		return err
 	}
+	batch.Restrict(tokenOf(c).Allows)
 	reply, err := eng.Push(batch)
 	if err != nil {
 		return err
@@ -94,6 +97,9 @@ func (s *Server) syncPull(c echo.Context) error {
 			return badRequest("limit", "limit must be a whole number from 1 to %d", tsync.MaxPullLimit)
 		}
 		req.Limit = n
+	}
+	if err := scopePull(tokenOf(c), &req); err != nil {
+		return err
 	}
 	page, err := eng.Pull(req)
 	if err != nil {
@@ -173,14 +179,10 @@ type peerRequest struct {
 // syncWithPeer answers POST /api/v1/sync/peer: this server pulls from and
 // pushes to another tagtally server now, resuming from its stored
 // checkpoints, and answers with what moved. `tagtally sync --server` uses
-// it when this server holds the data file. Like the backup download, it
-// is answered only for requests from this machine: it makes the server
+// it when this server holds the data file. Like the backup download, its
+// rule admits only a coordinator on this machine: it makes the server
 // contact an address the caller chooses.
 func (s *Server) syncWithPeer(c echo.Context) error {
-	host, _, err := net.SplitHostPort(c.Request().RemoteAddr)
-	if ip := net.ParseIP(host); err != nil || ip == nil || !ip.IsLoopback() {
-		return echo.NewHTTPError(http.StatusForbidden, "a peer sync can be started only on the server's own machine: run `tagtally sync` there")
-	}
 	eng, err := s.engine()
 	if err != nil {
 		return err
@@ -197,4 +199,17 @@ func (s *Server) syncWithPeer(c echo.Context) error {
 		return err // tsync.ErrPeer: 502
 	}
 	return c.JSON(http.StatusOK, rep)
+}
+
+// scopePull keeps a pull within the token's studies: a study outside them
+// is refused, and a pull of all studies gets only the token's.
+func scopePull(tok *access.Token, req *tsync.PullRequest) error {
+	if tok.AllStudies() {
+		return nil
+	}
+	if req.Study != "" && !tok.Allows(req.Study) {
+		return fmt.Errorf("%w: this token is for study %s, not %q", access.ErrDenied, strings.Join(tok.Studies, ", "), req.Study)
+	}
+	req.Studies = tok.Studies
+	return nil
 }

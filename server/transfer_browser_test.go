@@ -17,6 +17,8 @@ import (
 func TestTransferPageInBrowser(t *testing.T) {
 	ds := newDemoServer(t)
 	p := page{t: t, ctx: browser(t), dir: screenshotDir(t)}
+	watchCSP(p)
+	p.signIn(ds.srv, ds.URL)
 	p.show(ds.URL, "transfer")
 	href := evalAs[string](p, `document.querySelector("#export-xlsx").getAttribute("href")`)
 	if href != "/api/v1/studies/"+demo.StudyID+"/export.xlsx" {

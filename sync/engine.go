@@ -777,6 +777,9 @@ type PullRequest struct {
 	Cursor string
 	// Study keeps only that study's records; "" keeps all.
 	Study string
+	// Studies, when not nil, keeps only these studies' records (the
+	// puller's access scope; scope.go).
+	Studies []string
 	// SkipSource leaves out revisions that came from this sender (the
 	// puller itself: it has them). The cursor still moves past them.
 	SkipSource string
@@ -857,12 +860,12 @@ func (e *Engine) Pull(req PullRequest) (*PullPage, error) {
 			if req.SkipSource != "" && fe.source == req.SkipSource {
 				return true, nil
 			}
-			if req.Study != "" {
+			if req.filtered() {
 				rs, ok, err := t.record(fe.captureID)
 				if err != nil {
 					return false, err
 				}
-				if !ok || rs.study != req.Study {
+				if !ok || !req.keeps(rs.study) {
 					return true, nil
 				}
 			}

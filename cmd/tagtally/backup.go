@@ -64,7 +64,7 @@ func runBackup(args []string, stdout io.Writer) error {
 		}
 	case errors.Is(err, errInUse):
 		how = fmt.Sprintf("through the running server on port %d", cfg.Port)
-		err = backupFromServer(cfg.Port, dest)
+		err = backupFromServer(cfg.Data, cfg.Port, dest)
 	}
 	if err != nil {
 		return err
@@ -95,7 +95,7 @@ func backupDest(path, data string, force bool) (string, error) {
 
 // backupFromServer downloads GET /api/v1/backup from the server on this
 // machine into dest, through a temporary file renamed when complete.
-func backupFromServer(port int, dest string) error {
+func backupFromServer(data string, port int, dest string) error {
 	base := "http://127.0.0.1:" + strconv.Itoa(port)
 	client := &http.Client{Timeout: 30 * time.Minute}
 	if err := isTagtally(base); err != nil {
@@ -103,10 +103,11 @@ func backupFromServer(port int, dest string) error {
 	}
 	ctx, cancel := context.WithTimeout(context.Background(), 30*time.Minute)
 	defer cancel()
-	req, err := http.NewRequestWithContext(ctx, http.MethodGet, base+"/api/v1/backup", nil)
+	req, err := localRequest(data, http.MethodGet, base+"/api/v1/backup", nil)
 	if err != nil {
 		return err
 	}
+	req = req.WithContext(ctx)
 	resp, err := client.Do(req)
 	if err != nil {
 		return fmt.Errorf("backup through the server: %w", err)

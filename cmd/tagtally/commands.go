@@ -24,6 +24,7 @@ var commands = []command{
 	{"demo", "add the invented demonstration study to the data file", runDemo},
 	{"backup", "copy the data file safely, even while the server runs", runBackup},
 	{"sync", "sync records with another tagtally server", runSync},
+	{"access", "coordinator link, peer and script tokens, list and revoke access", runAccess},
 	{"version", "print the tagtally version", runVersion},
 	{"estimate", "estimate population size from capture histories", runEstimate},
 	{"export", "write a study as a workbook (XLSX) or CSV files", runExport},

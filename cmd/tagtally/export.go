@@ -60,7 +60,7 @@ func runExport(args []string, stdout io.Writer) error {
 	defer debug.SetMemoryLimit(debug.SetMemoryLimit(export.MemoryLimit))
 	store, err := openStore(cfg.Data)
 	if errors.Is(err, errInUse) {
-		return exportThroughServer(cfg.Port, *study, *out, *csvDir, stdout)
+		return exportThroughServer(cfg.Data, cfg.Port, *study, *out, *csvDir, stdout)
 	}
 	if err != nil {
 		return err
@@ -100,13 +100,13 @@ func runExport(args []string, stdout io.Writer) error {
 
 // exportThroughServer fetches the workbook or the CSV tables from the
 // server running on this machine.
-func exportThroughServer(port int, study, out, csvDir string, stdout io.Writer) error {
+func exportThroughServer(data string, port int, study, out, csvDir string, stdout io.Writer) error {
 	base := "http://127.0.0.1:" + strconv.Itoa(port)
 	if err := isTagtally(base); err != nil {
 		return fmt.Errorf("%w, and no tagtally server answered at %s (%v)", errInUse, base, err)
 	}
 	get := func(path, dest string) error {
-		req, err := localRequest(http.MethodGet, base+path, nil)
+		req, err := localRequest(data, http.MethodGet, base+path, nil)
 		if err != nil {
 			return err
 		}
@@ -233,7 +233,7 @@ func runImport(args []string, stdout io.Writer) error {
 		if *zone != "UTC" {
 			return fmt.Errorf("%w: --time-zone works only on the data file directly; stop the server or write zones into the file's times", errUsage)
 		}
-		rep, err = importThroughServer(cfg.Port, *study, path, data, mapping, *dry)
+		rep, err = importThroughServer(cfg.Data, cfg.Port, *study, path, data, mapping, *dry)
 	case err != nil:
 		return err
 	default:
@@ -287,7 +287,7 @@ func printImportReport(w io.Writer, rep *export.Report, dry, asJSON bool) {
 	}
 }
 
-func importThroughServer(port int, study, path string, data, mapping []byte, dry bool) (*export.Report, error) {
+func importThroughServer(dataFile string, port int, study, path string, data, mapping []byte, dry bool) (*export.Report, error) {
 	base := "http://127.0.0.1:" + strconv.Itoa(port)
 	if err := isTagtally(base); err != nil {
 		return nil, fmt.Errorf("%w, and no tagtally server answered at %s (%v)", errInUse, base, err)
@@ -302,7 +302,7 @@ func importThroughServer(port int, study, path string, data, mapping []byte, dry
 	}
 	mw.Close()
 	u := base + "/api/v1/studies/" + url.PathEscape(study) + "/import?dry_run=" + strconv.FormatBool(dry)
-	req, err := localRequest(http.MethodPost, u, &body)
+	req, err := localRequest(dataFile, http.MethodPost, u, &body)
 	if err != nil {
 		return nil, err
 	}
@@ -327,11 +327,4 @@ func importThroughServer(port int, study, path string, data, mapping []byte, dry
 		return ans.Report, fmt.Errorf("import through the server: %s: %s", resp.Status, ans.Error)
 	}
 	return ans.Report, nil
-}
-
-// localRequest makes a request to the server on this machine. Requests
-// from the command line to a local server carry no token of their own;
-// access control, where enabled, decides what they may do.
-func localRequest(method, u string, body io.Reader) (*http.Request, error) {
-	return http.NewRequest(method, u, body)
 }

@@ -46,7 +46,9 @@ func startServe(t *testing.T, bin, data string, port int) (*exec.Cmd, *bytes.Buf
 			cmd.Wait()
 		}
 	})
-	waitHealthy(t, fmt.Sprintf("http://127.0.0.1:%d", port))
+	base := fmt.Sprintf("http://127.0.0.1:%d", port)
+	waitHealthy(t, base)
+	rememberToken(t, base, data)
 	return cmd, out
 }
 

@@ -11,10 +11,12 @@ import (
 	"os"
 	"os/signal"
 	"strconv"
+	"sync/atomic"
 	"syscall"
 
 	"tagtally/demo"
 	"tagtally/server"
+	"tagtally/server/access"
 	"tagtally/server/camptls"
 )
 
@@ -35,6 +37,14 @@ itself when the addresses change or it nears expiry. Each phone trusts the
 authority once, from the setup page on the plain-HTTP port (the address
 ends in /setup; it shows a QR code of the HTTPS address and the steps for
 Android and iPhone). On this computer itself plain HTTP is enough.
+
+Nobody can use the server without being let in. At each start serve
+prints a one-time coordinator link (http://localhost:PORT/coord/#claim=...):
+open it on this computer to sign the browser in; it works once, for 12
+hours. On the coordinator's Access page, make join codes for phones (a QR
+code each phone scans), revoke lost phones and make tokens for other
+servers. While it runs, serve keeps a token for the tagtally commands on
+this computer beside the data file (DATA.token, readable only by you).
 
 With --demo it first adds the invented demonstration study (a wood-mouse
 trapping grid) to the data file, so there is something to look at.`
@@ -87,6 +97,16 @@ func serve(ctx context.Context, cfg config, withDemo bool, stdout io.Writer) (er
 	}
 	scfg := server.DefaultConfig()
 	scfg.Addr = net.JoinHostPort(cfg.Host, strconv.Itoa(cfg.Port))
+	// Join links name the camp's HTTPS address once the certificates exist.
+	var phoneCerts atomic.Pointer[camptls.Manager]
+	scfg.PhoneAddress = func() string {
+		if m := phoneCerts.Load(); m != nil {
+			if a := m.Addresses(); len(a) > 0 {
+				return a[0]
+			}
+		}
+		return ""
+	}
 	srv, err := server.New(store, scfg)
 	if err != nil {
 		return err
@@ -101,8 +121,18 @@ func serve(ctx context.Context, cfg config, withDemo bool, stdout io.Writer) (er
 		return fmt.Errorf("cannot listen on port %d: %w (is another server using it? try --port)", cfg.Port, err)
 	}
 	port := ln.Addr().(*net.TCPAddr).Port
+	stopToken, err := startLocalToken(srv.Access(), cfg.Data)
+	if err != nil {
+		ln.Close()
+		return err
+	}
+	defer stopToken()
 	if cfg.NoTLS {
 		printAddresses(stdout, cfg, port, nil)
+		if err := printClaimLink(stdout, srv, port); err != nil {
+			ln.Close()
+			return err
+		}
 		return finishServing(stdout, srv.Serve(ctx, ln))
 	}
 
@@ -111,7 +141,13 @@ func serve(ctx context.Context, cfg config, withDemo bool, stdout io.Writer) (er
 		ln.Close()
 		return err
 	}
+	phoneCerts.Store(certs)
 	printAddresses(stdout, cfg, port, certs)
+	if err := printClaimLink(stdout, srv, port); err != nil {
+		ln.Close()
+		tlsLn.Close()
+		return err
+	}
 	ctx, cancel := context.WithCancel(ctx)
 	defer cancel()
 	go certs.Run(ctx, camptls.RefreshEvery)
@@ -125,6 +161,18 @@ func serve(ctx context.Context, cfg config, withDemo bool, stdout io.Writer) (er
 	tlsErr := srv.Serve(ctx, tlsLn)
 	cancel()
 	return finishServing(stdout, errors.Join(tlsErr, <-plainErr))
+}
+
+// printClaimLink makes a new one-time coordinator link (older unused
+// ones stop working) and prints it.
+func printClaimLink(w io.Writer, srv *server.Server, port int) error {
+	code, err := srv.Access().NewClaim()
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(w, "Coordinator: open this link once, on this computer, within %d hours (it signs this browser in):\n  %s\n", int(access.ClaimTTL.Hours()), server.ClaimURL("http://localhost:"+strconv.Itoa(port), code))
+	fmt.Fprintln(w, "  (a lost link is replaced by `tagtally access link`; phones join with codes made on the Access page)")
+	return nil
 }
 
 func finishServing(stdout io.Writer, err error) error {

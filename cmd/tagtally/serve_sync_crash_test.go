@@ -21,23 +21,6 @@ import (
 	tsync "tagtally/sync"
 )
 
-// lockedBuffer collects a subprocess's output while the test reads it.
-type lockedBuffer struct {
-	mu  sync.Mutex
-	buf bytes.Buffer
-}
-
-func (b *lockedBuffer) Write(p []byte) (int, error) {
-	b.mu.Lock()
-	defer b.mu.Unlock()
-	return b.buf.Write(p)
-}
-
-func (b *lockedBuffer) String() string {
-	b.mu.Lock()
-	defer b.mu.Unlock()
-	return b.buf.String()
-}
 
 // serveScheduled starts `tagtally serve` with its scheduled sync with peer
 // and extra environment variables.

@@ -14,7 +14,6 @@ import (
 	"path/filepath"
 	"regexp"
 	"strings"
-	stdsync "sync"
 	"testing"
 	"time"
 
@@ -27,7 +26,7 @@ func serveInProcess(t *testing.T, cfg config) *bytes.Buffer {
 	t.Helper()
 	ctx, stop := context.WithCancel(context.Background())
 	served := make(chan error, 1)
-	out := &syncBuffer{}
+	out := &lockedBuffer{}
 	go func() { served <- serve(ctx, cfg, false, out) }()
 	t.Cleanup(func() {
 		stop()
@@ -226,21 +225,3 @@ func TestTLSFlagsValidate(t *testing.T) {
 	}
 }
 
-// syncBuffer is a bytes.Buffer safe for the serving goroutine to write
-// while the test reads.
-type syncBuffer struct {
-	mu  stdsync.Mutex
-	buf bytes.Buffer
-}
-
-func (b *syncBuffer) Write(p []byte) (int, error) {
-	b.mu.Lock()
-	defer b.mu.Unlock()
-	return b.buf.Write(p)
-}
-
-func (b *syncBuffer) String() string {
-	b.mu.Lock()
-	defer b.mu.Unlock()
-	return b.buf.String()
-}

@@ -41,7 +41,7 @@ func runSync(args []string, stdout io.Writer) error {
 	fs.SetOutput(stdout)
 	cfg.addDataFlag(fs)
 	peer := fs.String("peer", "", "base URL of the other tagtally server, e.g. http://10.0.0.2:8080 (required)")
-	token := fs.String("token", os.Getenv("TAGTALLY_PEER_TOKEN"), "access token for the other server (environment: TAGTALLY_PEER_TOKEN)")
+	token := fs.String("token", os.Getenv("TAGTALLY_PEER_TOKEN"), "the peer token the other server's coordinator made for this one (Access page, or tagtally access token --kind peer there; environment: TAGTALLY_PEER_TOKEN)")
 	study := fs.String("study", "", "sync only this study (default: all)")
 	page := fs.Int("page", tsync.DefaultPullLimit, "revisions per request")
 	via := fs.String("server", "", "address of the tagtally server running on this machine that holds the data file, e.g. http://127.0.0.1:8080")
@@ -64,7 +64,7 @@ func runSync(args []string, stdout io.Writer) error {
 	defer stop()
 	once := func() (*tsync.PeerReport, error) {
 		if *via != "" {
-			return syncThroughServer(ctx, *via, p)
+			return syncThroughServer(ctx, cfg.Data, *via, p)
 		}
 		return syncDataFile(ctx, cfg.Data, p)
 	}
@@ -116,12 +116,13 @@ func syncDataFile(ctx context.Context, data string, p tsync.Peer) (rep *tsync.Pe
 }
 
 // syncThroughServer asks the server running on this machine to sync.
-func syncThroughServer(ctx context.Context, server string, p tsync.Peer) (*tsync.PeerReport, error) {
+func syncThroughServer(ctx context.Context, dataFile, server string, p tsync.Peer) (*tsync.PeerReport, error) {
 	body, _ := json.Marshal(map[string]any{"url": p.URL, "token": p.Token, "study": p.Study, "page_size": p.PageSize})
-	req, err := http.NewRequestWithContext(ctx, http.MethodPost, strings.TrimRight(server, "/")+"/api/v1/sync/peer", bytes.NewReader(body))
+	req, err := localRequest(dataFile, http.MethodPost, strings.TrimRight(server, "/")+"/api/v1/sync/peer", bytes.NewReader(body))
 	if err != nil {
 		return nil, err
 	}
+	req = req.WithContext(ctx)
 	req.Header.Set("Content-Type", "application/json")
 	resp, err := (&http.Client{Timeout: 10 * time.Minute}).Do(req)
 	if err != nil {

@@ -40,7 +40,9 @@ func serveWithEnv(t *testing.T, bin, data string, port int, env ...string) *exec
 			cmd.Wait()
 		}
 	})
-	waitHealthy(t, fmt.Sprintf("http://127.0.0.1:%d", port))
+	base := fmt.Sprintf("http://127.0.0.1:%d", port)
+	waitHealthy(t, base)
+	rememberToken(t, base, data)
 	return cmd
 }
 
@@ -211,6 +213,10 @@ func TestSyncEndToEnd(t *testing.T) {
 	srvB := serveWithEnv(t, bin, filepath.Join(dir, "office.db"), pb)
 	createStudy(t, a)
 	createStudy(t, b)
+	// The camp's coordinator gives the office a peer token, and the other
+	// way round for the archive below.
+	tokA, tokB := peerToken(t, a, storetest.Study().ID), peerToken(t, b, storetest.Study().ID)
+	viaB := []string{"--server", b, "--data", filepath.Join(dir, "office.db"), "--peer", a, "--token", tokA}
 
 	p1, p2 := newPhone("phone-1"), newPhone("phone-2")
 	var ids []string
@@ -232,7 +238,7 @@ func TestSyncEndToEnd(t *testing.T) {
 	}
 
 	// The office's running server syncs with the camp.
-	rep, err := runSyncCmd(t, bin, nil, "--server", b, "--peer", a, "--page", "7")
+	rep, err := runSyncCmd(t, bin, nil, append(viaB, "--page", "7")...)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -247,7 +253,7 @@ func TestSyncEndToEnd(t *testing.T) {
 	e3 := p2.rev(t, ids[1], 3000, []string{revs[1].Revision.ID}, false)
 	push(t, a, "phone-1", []*capture.Capture{e1, d1})
 	push(t, b, "phone-2", []*capture.Capture{e2, e3})
-	if rep, err = runSyncCmd(t, bin, nil, "--server", b, "--peer", a); err != nil {
+	if rep, err = runSyncCmd(t, bin, nil, viaB...); err != nil {
 		t.Fatal(err)
 	}
 	if rep.PulledStored != 2 || rep.PushedStored != 2 {
@@ -271,14 +277,14 @@ func TestSyncEndToEnd(t *testing.T) {
 	if code := postJSON(t, b+"/api/v1/studies/"+storetest.Study().ID+"/captures/"+ids[0]+"/resolve", map[string]any{"leaves": h.Leaves}, nil); code != http.StatusConflict {
 		t.Fatalf("resolve with stale leaves: %d, want 409", code)
 	}
-	if rep, err = runSyncCmd(t, bin, nil, "--server", b, "--peer", a); err != nil || rep.PushedStored != 1 {
+	if rep, err = runSyncCmd(t, bin, nil, viaB...); err != nil || rep.PushedStored != 1 {
 		t.Fatalf("third sync: %+v %v", rep, err)
 	}
 	if h := history(t, a, ids[0]); h.Conflict || len(h.Leaves) != 1 || h.Winner != res.Capture.Revision.ID {
 		t.Fatalf("camp after resolution: %+v", h)
 	}
 	// Converged: a further sync moves nothing.
-	if rep, err = runSyncCmd(t, bin, nil, "--server", b, "--peer", a); err != nil || rep.Pulled != 0 || rep.Pushed != 0 {
+	if rep, err = runSyncCmd(t, bin, nil, viaB...); err != nil || rep.Pulled != 0 || rep.Pushed != 0 {
 		t.Fatalf("sync after convergence moved %+v %v", rep, err)
 	}
 	fa, fb := feed(t, a), feed(t, b)
@@ -295,7 +301,7 @@ func TestSyncEndToEnd(t *testing.T) {
 		t.Fatal(err)
 	}
 	s.Close()
-	if rep, err = runSyncCmd(t, bin, nil, "--data", cdata, "--peer", b); err != nil || rep.PulledStored != len(fb) || rep.PushedStored != 0 {
+	if rep, err = runSyncCmd(t, bin, nil, "--data", cdata, "--peer", b, "--token", tokB); err != nil || rep.PulledStored != len(fb) || rep.PushedStored != 0 {
 		t.Fatalf("archive sync: %+v %v (office has %d)", rep, err, len(fb))
 	}
 	serveWithEnv(t, bin, cdata, pc)
@@ -563,6 +569,7 @@ func TestSyncCrashBeforeCheckpoint(t *testing.T) {
 	srvB := serveWithEnv(t, bin, bdata, pb)
 	createStudy(t, a)
 	createStudy(t, b)
+	tokA := peerToken(t, a, storetest.Study().ID)
 	ph := newPhone("phone-1")
 	var revs []*capture.Capture
 	for i := 0; i < 300; i++ {
@@ -585,7 +592,7 @@ func TestSyncCrashBeforeCheckpoint(t *testing.T) {
 	stopServe(t, srvB)
 
 	// Killed after the 2nd pulled page is committed with its cursor.
-	_, err := runSyncCmd(t, bin, []string{"TAGTALLY_SYNC_FAULT=after-pull-commit:2"}, "--data", bdata, "--peer", a, "--page", "50")
+	_, err := runSyncCmd(t, bin, []string{"TAGTALLY_SYNC_FAULT=after-pull-commit:2"}, "--data", bdata, "--peer", a, "--token", tokA, "--page", "50")
 	if err == nil || !strings.Contains(err.Error(), "killed") {
 		t.Fatalf("sync was not killed at the fault point: %v", err)
 	}
@@ -593,7 +600,7 @@ func TestSyncCrashBeforeCheckpoint(t *testing.T) {
 
 	// Killed after the peer confirmed the 3rd pushed page, before the
 	// checkpoint: the checkpoint stays at the 2nd page.
-	_, err = runSyncCmd(t, bin, []string{"TAGTALLY_SYNC_FAULT=before-push-checkpoint:3"}, "--data", bdata, "--peer", a, "--page", "50")
+	_, err = runSyncCmd(t, bin, []string{"TAGTALLY_SYNC_FAULT=before-push-checkpoint:3"}, "--data", bdata, "--peer", a, "--token", tokA, "--page", "50")
 	if err == nil || !strings.Contains(err.Error(), "killed") {
 		t.Fatalf("sync was not killed at the fault point: %v", err)
 	}
@@ -604,7 +611,7 @@ func TestSyncCrashBeforeCheckpoint(t *testing.T) {
 	checkpointsBehindData(t, bdata, a, fa)
 
 	// Run again: it resumes; the unrecorded page comes back as already had.
-	rep, err := runSyncCmd(t, bin, nil, "--data", bdata, "--peer", a, "--page", "50")
+	rep, err := runSyncCmd(t, bin, nil, "--data", bdata, "--peer", a, "--token", tokA, "--page", "50")
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -17,6 +17,7 @@ const SHELL = [
   "/js/uuid.js",
   "/js/revision.js",
   "/js/view.js",
+  "/js/enrol.js",
   "/manifest.webmanifest",
   "/icons/icon.svg",
   "/icons/icon-192.png",

@@ -24,8 +24,8 @@ const RefreshEvery = 5 * time.Minute
 // change or expiry nears; with the user's own certificate (NewFixed) it
 // only serves that one and the setup page offers no authority download.
 type Manager struct {
-	dir     string   // camp authority folder; "" for a user's own certificate
-	port    int      // HTTPS port named on the setup page
+	dir     string // camp authority folder; "" for a user's own certificate
+	port    int    // HTTPS port named on the setup page
 	hosts   func() []string
 	addrs   func() []string
 	log     *slog.Logger

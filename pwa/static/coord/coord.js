@@ -5,6 +5,7 @@
 // the page with textContent, never as HTML.
 
 import { barChart, bandChart, intervalChart } from "./plot.js";
+import { changeHeaders, signIn, signedOut, viewAccess } from "./access.js";
 
 const API = "/api/v1";
 const state = { studies: [], study: "", view: "summary" };
@@ -16,6 +17,8 @@ function h(tag, attrs = {}, ...kids) {
   for (const [k, v] of Object.entries(attrs)) {
     if (v === undefined || v === null || v === false) continue;
     if (k === "class") e.className = v;
+    // Through the CSSOM: the server's CSP refuses inline style attributes.
+    else if (k === "style") e.style.cssText = v;
     else if (k.startsWith("on")) e.addEventListener(k.slice(2), v);
     else if (k === "text") e.textContent = v;
     else e.setAttribute(k, v === true ? "" : String(v));
@@ -28,7 +31,8 @@ function h(tag, attrs = {}, ...kids) {
 }
 
 async function api(path, options = {}) {
-  const res = await fetch(API + path, { cache: "no-store", headers: { Accept: "application/json", ...(options.body ? { "Content-Type": "application/json" } : {}) }, ...options });
+  const change = options.method && options.method !== "GET" ? changeHeaders() : {};
+  const res = await fetch(API + path, { cache: "no-store", headers: { Accept: "application/json", ...(options.body ? { "Content-Type": "application/json" } : {}), ...change }, ...options });
   const text = await res.text();
   let body = null;
   try {
@@ -112,7 +116,12 @@ async function loadStudies() {
   });
 }
 
-const views = { summary: viewSummary, checks: viewChecks, conflicts: viewConflicts, devices: viewDevices, estimates: viewEstimates, transfer: viewTransfer };
+const views = { summary: viewSummary, checks: viewChecks, conflicts: viewConflicts, devices: viewDevices, estimates: viewEstimates, transfer: viewTransfer, access: viewAccessPage };
+
+function viewAccessPage() {
+  const st = state.studies.find((s) => s.id === state.study);
+  return viewAccess({ h, show, study: state.study, studyName: st ? st.name : state.study });
+}
 
 async function route() {
   const v = location.hash.replace("#", "") || "summary";
@@ -629,7 +638,7 @@ async function viewTransfer() {
     form.append("file", file.files[0]);
     if (mapping.files.length) form.append("mapping", mapping.files[0]);
     report.replaceChildren(h("p", { class: "muted" }, dry ? "Checking…" : "Importing…"));
-    const res = await fetch(`${base}/import?dry_run=${dry}`, { method: "POST", body: form, headers: { Accept: "application/json" } });
+    const res = await fetch(`${base}/import?dry_run=${dry}`, { method: "POST", body: form, headers: { Accept: "application/json", ...changeHeaders() } });
     let body = null;
     try {
       body = await res.json();
@@ -761,8 +770,13 @@ async function viewEstimates() {
 
 async function start() {
   wireEditor();
-  window.addEventListener("hashchange", route);
   try {
+    if (!(await signIn())) {
+      show(...signedOut(h));
+      main().dataset.shown = "signed-out";
+      return;
+    }
+    window.addEventListener("hashchange", route);
     await loadStudies();
   } catch (err) {
     show(failure(err));

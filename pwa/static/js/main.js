@@ -8,6 +8,7 @@ import { enqueue } from "./outbox.js";
 import { buildTagIndex, lookupTag, suggestTags, eventFor, normaliseTag } from "./tags.js";
 import { uuidv7 } from "./uuid.js";
 import { nearestStations, formatWhen, formatLast } from "./view.js";
+import * as enrol from "./enrol.js";
 
 const $ = (id) => document.getElementById(id);
 const DRAFT_KEY = "tagtally-draft";
@@ -41,7 +42,13 @@ async function start() {
   state.observer = (await db.getMeta("observer")) || "";
   $("observer").value = state.observer;
   const study = await db.getMeta("study");
-  if (study) {
+  const code = enrol.codeFromAddress();
+  if (code || !(await enrol.hasToken())) {
+    // Joining needs the server; a phone with a study keeps recording
+    // offline meanwhile, so the join step comes first only without one.
+    if (code || !study) showEnrol(code);
+    else await useStudy(study, false);
+  } else if (study) {
     await useStudy(study, false);
   } else {
     await showJoin();
@@ -174,6 +181,19 @@ async function showJoin() {
     list.textContent = "";
     $("join-error").textContent = `Cannot reach the camp server (${e.message}). Join the camp Wi-Fi and try again.`;
   }
+}
+
+// showEnrol shows the join step; once joined, the phone opens the study
+// its code was for.
+function showEnrol(code = "") {
+  enrol.showJoinScreen(state.device, (ans) => {
+    const studyID = (ans.studies || [])[0];
+    if (state.study && state.study.id === studyID) {
+      show("record");
+      syncSoon();
+    } else if (studyID) joinStudy(studyID);
+    else showJoin();
+  }, code);
 }
 
 async function joinStudy(id) {
@@ -661,6 +681,7 @@ async function syncNow(byHand) {
   }
   if (state.syncing || !state.study) return;
   state.syncing = true;
+  const joinMark = enrol.joinCount();
   try {
     if (!(await server.serverAnswers())) {
       $("server-state").textContent = "not answering (records stay safe on this phone)";
@@ -676,6 +697,7 @@ async function syncNow(byHand) {
     await reloadCaptures();
     if (!$("screen-outbox").hidden) await renderOutbox();
   } catch (e) {
+    if (e.status === 401 && enrol.joinCount() === joinMark) enrol.showRevoked(() => showEnrol());
     msg.textContent = `Sync stopped: ${e.message}. Nothing was lost; it will try again.`;
   } finally {
     state.syncing = false;

@@ -1,0 +1,25 @@
+package main
+
+import (
+	"bytes"
+	"sync"
+)
+
+// lockedBuffer is a bytes.Buffer that a serving goroutine or a
+// subprocess's output copier may write while the test reads it.
+type lockedBuffer struct {
+	mu  sync.Mutex
+	buf bytes.Buffer
+}
+
+func (b *lockedBuffer) Write(p []byte) (int, error) {
+	b.mu.Lock()
+	defer b.mu.Unlock()
+	return b.buf.Write(p)
+}
+
+func (b *lockedBuffer) String() string {
+	b.mu.Lock()
+	defer b.mu.Unlock()
+	return b.buf.String()
+}
