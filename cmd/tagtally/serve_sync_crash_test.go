@@ -18,6 +18,7 @@ import (
 	"github.com/google/uuid"
 
 	"tagtally/capture"
+	"tagtally/capture/storetest"
 	tsync "tagtally/sync"
 )
 
@@ -40,7 +41,9 @@ func serveScheduled(t *testing.T, bin, data string, port int, peer string, every
 			cmd.Wait()
 		}
 	})
-	waitHealthy(t, fmt.Sprintf("http://127.0.0.1:%d", port))
+	base := fmt.Sprintf("http://127.0.0.1:%d", port)
+	waitHealthy(t, base)
+	rememberToken(t, base, data) // each start writes a new local token
 	return cmd, out
 }
 
@@ -168,13 +171,16 @@ func TestServeScheduledSyncCrashBeforePushCheckpoint(t *testing.T) {
 	srv := serveWithEnv(t, bin, cdata, pb)
 	createStudy(t, camp) // before the first sync: a revision of a study the camp lacks is refused for good
 	stopServe(t, srv)
+	// The office's coordinator gives the camp a peer token for the study.
+	peerTok := peerToken(t, office, storetest.Study().ID)
+	peerEnv := "TAGTALLY_PEER_TOKEN=" + peerTok
 
 	// Every 100 ms the scheduled sync pulls what the office phone sent and
 	// pushes (as one page) what the camp phones sent since the last run; a
 	// run with nothing to push does not reach the fault point. The camp is
 	// killed at the 3rd page the office confirms, while the phones push.
 	const killAt = 3
-	srv, out := serveScheduled(t, bin, cdata, pb, office, 100*time.Millisecond, fmt.Sprintf("TAGTALLY_SYNC_FAULT=before-push-checkpoint:%d", killAt))
+	srv, out := serveScheduled(t, bin, cdata, pb, office, 100*time.Millisecond, peerEnv, fmt.Sprintf("TAGTALLY_SYNC_FAULT=before-push-checkpoint:%d", killAt))
 	stopOffice := make(chan struct{})
 	campPhones := []*pushingPhone{{phone: newPhone("phone-1"), base: camp}, {phone: newPhone("phone-2"), base: camp}}
 	officePhone := &pushingPhone{phone: newPhone("phone-9"), base: office}
@@ -259,7 +265,7 @@ func TestServeScheduledSyncCrashBeforePushCheckpoint(t *testing.T) {
 	toReceive := pullAfter(t, office, cp.Pulled, campReplica)
 
 	// Restart with the schedule (once, at start) and no fault.
-	srv, out = serveScheduled(t, bin, cdata, pb, office, time.Hour)
+	srv, out = serveScheduled(t, bin, cdata, pb, office, time.Hour, peerEnv)
 	got := waitPeerSync(t, out)
 	want := peerSyncLog{received: len(toReceive), newHere: len(toReceive), sent: len(toSend), newThere: len(toSend) - alreadyThere}
 	if got != want {
@@ -301,14 +307,14 @@ func TestServeScheduledSyncCrashBeforePushCheckpoint(t *testing.T) {
 		}
 		resent += len(p.pending)
 	}
-	rep, err := runSyncCmd(t, bin, nil, "--server", camp, "--peer", office)
+	rep, err := runSyncCmd(t, bin, nil, "--server", camp, "--data", cdata, "--peer", office, "--token", peerTok)
 	if err != nil {
 		t.Fatal(err)
 	}
 	if rep.Pulled != 0 || rep.Pushed != stored || rep.PushedStored != stored || rep.Rejected != 0 {
 		t.Fatalf("sync after the phones resent %d (%d new): %+v", resent, stored, rep)
 	}
-	if rep, err = runSyncCmd(t, bin, nil, "--server", camp, "--peer", office); err != nil || rep.Pulled != 0 || rep.Pushed != 0 {
+	if rep, err = runSyncCmd(t, bin, nil, "--server", camp, "--data", cdata, "--peer", office, "--token", peerTok); err != nil || rep.Pulled != 0 || rep.Pushed != 0 {
 		t.Fatalf("sync after convergence moved %+v %v", rep, err)
 	}
 	campFeed = feed(t, camp)
