@@ -109,6 +109,14 @@ func TestSetupPage(t *testing.T) {
 	if strings.Contains(page.Body.String(), "<script") {
 		t.Error("setup page must not carry script")
 	}
+	for h, want := range map[string]string{"X-Frame-Options": "DENY", "Referrer-Policy": "no-referrer", "X-Content-Type-Options": "nosniff"} {
+		if got := page.Header().Get(h); got != want {
+			t.Errorf("setup page header %s = %q, want %q", h, got, want)
+		}
+	}
+	if csp := page.Header().Get("Content-Security-Policy"); !strings.Contains(csp, "frame-ancestors 'none'") || strings.Contains(csp, "unsafe-inline") {
+		t.Errorf("setup page CSP %q", csp)
+	}
 	ca := get(CAPath)
 	if ca.Header().Get("Content-Type") != "application/x-x509-ca-cert" || !strings.Contains(ca.Body.String(), "BEGIN CERTIFICATE") {
 		t.Errorf("certificate download: %v", ca.Header())

@@ -85,6 +85,8 @@ func (s *Setup) ServeHTTP(w http.ResponseWriter, r *http.Request) {
 		return
 	}
 	w.Header().Set("X-Content-Type-Options", "nosniff")
+	w.Header().Set("X-Frame-Options", "DENY")
+	w.Header().Set("Referrer-Policy", "no-referrer")
 	w.Header().Set("Content-Security-Policy", "default-src 'self'; img-src 'self'; style-src 'self'; frame-ancestors 'none'")
 	switch strings.TrimSuffix(r.URL.Path, "/") {
 	case SetupPath, "":
