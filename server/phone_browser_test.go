@@ -901,6 +901,7 @@ func TestPhoneCaptureScreenInBrowser(t *testing.T) {
 	p.click("#join-submit")
 	p.wait(`document.getElementById("join-code-error").textContent.includes("initials")`)
 	lowest = min(lowest, p.checkLayout("join (no initials)", 320, 360))
+	p.shot("phone-join-360x740.png", false)
 	if n := len(ps.deviceTokens()); n != 0 {
 		t.Errorf("the phone joined without initials (%d phone tokens)", n)
 	}
@@ -924,6 +925,10 @@ func TestPhoneCaptureScreenInBrowser(t *testing.T) {
 		t.Errorf("recapture status does not show the animal's last record: %q", status)
 	}
 	p.do(chromedp.Evaluate[chromedp.Void](`window.scrollTo(0, 0)`))
+	// The "study is ready" message lies over the header for a few
+	// seconds after joining; the picture is of the screen the crew works
+	// with, study name and sync state in view.
+	p.wait(`document.getElementById("toast").hidden`)
 	p.shot("phone-capture-360x740.png", false)
 	p.shot("phone-capture-360-full.png", true)
 	lowest = min(lowest, p.checkLayout("record", 320, 360))
