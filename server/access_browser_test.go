@@ -51,7 +51,11 @@ func TestPhoneJoinsAndIsRevokedInBrowser(t *testing.T) {
 	}
 	p := page{t: t, ctx: browser(t), dir: screenshotDir(t)}
 	watchCSP(p)
+	// The link fills the code; the crew member gives initials (saved on
+	// every record) and joins.
 	p.do(chromedp.EmulateViewport(412, 915), chromedp.Navigate(ds.URL+"/#join="+jc.Code),
+		chromedp.WaitVisible(chromedp.CSS(`#join-observer`)),
+		chromedp.SendKeys(chromedp.CSS(`#join-observer`), "QH"+kb.Enter),
 		chromedp.WaitVisible(chromedp.CSS(`#screen-cautions`)))
 	if h := evalAs[string](p, `location.hash`); h != "" {
 		t.Errorf("the used join code stays in the address: %q", h)
@@ -111,6 +115,15 @@ func TestPhoneJoinsAndIsRevokedInBrowser(t *testing.T) {
 	}
 	if n := countCaptures(t, ds, "QH-0999"); n != 1 {
 		t.Errorf("the record saved while cut off reached the server %d times, want 1", n)
+	}
+	all, err := ds.store.Captures(demo.StudyID, true)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range all {
+		if c.TagID == "QH-0999" && c.Observer != "QH" {
+			t.Errorf("the record of the phone that joined by link names observer %q, want the initials given when joining, QH", c.Observer)
+		}
 	}
 }
 

@@ -33,6 +33,7 @@ import (
 	"tagtally/capture"
 	"tagtally/capture/storetest"
 	"tagtally/pwa"
+	"tagtally/server/access"
 )
 
 // The phone app's browser tests. The camp server listens on one loopback
@@ -255,19 +256,82 @@ func await[T any](p phone, expr string) T {
 	return v
 }
 
-// join chooses the only study on the camp server, gives the crew member's
+// joinCode makes a single-use recorder join code for the study, as the
+// coordinator's Access page does.
+func (ps *phoneServer) joinCode() string {
+	ps.t.Helper()
+	jc, err := ps.srv.Access().NewJoinCode(ps.study.ID, access.Recorder, "test coordinator")
+	if err != nil {
+		ps.t.Fatal(err)
+	}
+	return jc.Code
+}
+
+// join joins the camp server with the coordinator's join code as a crew
+// member does (byLink: opens the join link, as scanning its QR code does;
+// else types the code on the join screen), gives the crew member's
 // initials and accepts the handling cautions.
-func (p phone) join(observer string) {
+func (p phone) join(code, observer string, byLink bool) {
 	p.t.Helper()
-	p.wait(`document.querySelector("#study-list button") !== null`)
-	p.do(chromedp.SendKeys(chromedp.ID("observer"), observer))
-	p.click("#study-list button")
+	p.joinScreen(code, byLink)
+	p.submitJoin(observer)
+	p.acceptCautions()
+}
+
+// joinScreen waits for the join screen with the code in its box: opened
+// from the join link, or typed.
+func (p phone) joinScreen(code string, byLink bool) {
+	p.t.Helper()
+	if byLink {
+		// A fresh page, as the camera opens the link: a change of the
+		// address's #part alone does not reload the page.
+		p.do(chromedp.Navigate("about:blank"), chromedp.Navigate(p.base+"/#join="+code))
+	}
+	p.wait(`(() => { const s = document.getElementById("screen-enrol"); return s !== null && !s.hidden; })()`)
+	if !byLink {
+		p.do(chromedp.SendKeys(chromedp.ID("join-code"), code))
+	}
+	if got := evalAs[string](p.page, `document.getElementById("join-code").value`); got != code {
+		p.t.Fatalf("join code box holds %q, want %q", got, code)
+	}
+	if h := evalAs[string](p.page, `location.hash`); h != "" {
+		p.t.Errorf("the join code stays in the address: %q", h)
+	}
+}
+
+// submitJoin gives the initials on the join screen and presses Join; the
+// cautions screen follows.
+func (p phone) submitJoin(observer string) {
+	p.t.Helper()
+	p.do(chromedp.SendKeys(chromedp.ID("join-observer"), observer))
+	p.click("#join-submit")
 	p.wait(`!document.getElementById("screen-cautions").hidden`)
+}
+
+// acceptCautions checks the cautions screen and accepts it.
+func (p phone) acceptCautions() {
+	p.t.Helper()
 	if text := p.text("#screen-cautions"); !strings.Contains(text, "permits") || !strings.Contains(text, "CH-2026-07") {
 		p.t.Errorf("cautions screen does not show the permit cautions and the study's permit: %q", text)
 	}
 	p.click("#accept-cautions")
 	p.wait(`!document.getElementById("screen-record").hidden`)
+}
+
+// deviceTokens lists the server's phone tokens.
+func (ps *phoneServer) deviceTokens() []access.Token {
+	ps.t.Helper()
+	all, err := ps.srv.Access().Tokens()
+	if err != nil {
+		ps.t.Fatal(err)
+	}
+	var out []access.Token
+	for _, tok := range all {
+		if tok.Kind == access.KindDevice {
+			out = append(out, tok)
+		}
+	}
+	return out
 }
 
 // waitServiceWorker waits until the service worker controls the page and
@@ -490,7 +554,13 @@ func TestPhoneAppOfflineInBrowser(t *testing.T) {
 	profile := t.TempDir()
 	nearB1 := [2]float64{52.6103, 1.3500} // station B1's position
 	p := openPhone(t, profile, ps.url(), 360, 740, nearB1)
-	p.join("JW")
+	// The crew member types the join code the coordinator shows.
+	p.join(ps.joinCode(), "JW", false)
+	devs := ps.deviceTokens()
+	if len(devs) != 1 || devs[0].Role != access.Recorder || len(devs[0].Studies) != 1 || devs[0].Studies[0] != ps.study.ID {
+		t.Fatalf("after the first phone joined the server has the phone tokens %+v, want one recorder token for %s", devs, ps.study.ID)
+	}
+	phoneToken := devs[0]
 	p.waitServiceWorker()
 	// Nearest station first, from the GPS position.
 	p.wait(`document.getElementById("station").options.length === 5 && document.getElementById("station").options[1].value === "B1"`)
@@ -566,6 +636,36 @@ func TestPhoneAppOfflineInBrowser(t *testing.T) {
 	}
 	mark("synced")
 	checkServerHolds(t, ps, onPhone)
+	// The phone sent them with the token it joined with, kept through the
+	// closed browser and the server's restart: no second join, no refusal.
+	if devs := ps.deviceTokens(); len(devs) != 1 || devs[0].ID != phoneToken.ID || devs[0].Revoked != nil {
+		t.Errorf("after the sync the phone tokens are %+v, want only the first phone's %s, unrevoked", devs, phoneToken.ID)
+	}
+	if phoneToken.Label != onPhone[0].Device {
+		t.Errorf("the phone joined as %q but its records name device %q", phoneToken.Label, onPhone[0].Device)
+	}
+	// guard writes a request's audit entry after the answer has gone,
+	// so the phone may have its answer before the entry is there.
+	pushes, refused := 0, 0
+	for deadline := time.Now().Add(10 * time.Second); pushes == 0 && time.Now().Before(deadline); time.Sleep(50 * time.Millisecond) {
+		audit, err := ps.srv.Access().Audit(access.MaxAuditPage, 0)
+		if err != nil {
+			t.Fatal(err)
+		}
+		pushes, refused = 0, 0
+		for _, e := range audit {
+			if e.TokenID == phoneToken.ID && e.Route == "/api/v1/sync/push" {
+				if e.Status == http.StatusOK {
+					pushes++
+				} else {
+					refused++
+				}
+			}
+		}
+	}
+	if pushes == 0 || refused != 0 {
+		t.Errorf("audit log: %d pushes answered 200 and %d refused with the first phone's token, want some and none", pushes, refused)
+	}
 
 	// A second press sends nothing new, and the server still holds 20.
 	p.click("#sync-now")
@@ -579,7 +679,11 @@ func TestPhoneAppOfflineInBrowser(t *testing.T) {
 	// type-ahead, and a tag marked there is a recapture here.
 	mark("second phone")
 	q := openPhone(t, t.TempDir(), ps.url(), 360, 740, nearB1)
-	q.join("MH")
+	// This crew member scans the join code's QR code: the join link.
+	q.join(ps.joinCode(), "MH", true)
+	if devs := ps.deviceTokens(); len(devs) != 2 {
+		t.Errorf("after the second phone joined the server has %d phone tokens, want 2", len(devs))
+	}
 	q.wait(`document.getElementById("last-sync").textContent !== "never"`)
 	q.do(chromedp.SendKeys(chromedp.ID("tag"), "BF-00"))
 	q.wait(`document.querySelectorAll("#tag-suggestions button").length === 6`)
@@ -592,8 +696,23 @@ func TestPhoneAppOfflineInBrowser(t *testing.T) {
 	q.record(entry{tag: "BF-0101", pick: "0101", status: "recapture", station: "A2", mass: "23"}, 1)
 	q.wait(`document.getElementById("outbox-count").textContent === "0" && document.getElementById("tab-count").hidden`)
 	mark("second phone's record sent")
-	if all, err := ps.store.Captures(ps.study.ID, true); err != nil || len(all) != 21 {
+	all, err := ps.store.Captures(ps.study.ID, true)
+	if err != nil || len(all) != 21 {
 		t.Errorf("after the second phone's record the server holds %d records (%v), want 21", len(all), err)
+	}
+	// The second phone's record carries the initials given when joining
+	// and that phone's name.
+	second := 0
+	for _, c := range all {
+		if c.Observer == "MH" {
+			second++
+			if c.TagID != "BF-0101" || c.Device == "" || c.Device == phoneToken.Label {
+				t.Errorf("the second phone's record: tag %s, device %q (the first phone is %q)", c.TagID, c.Device, phoneToken.Label)
+			}
+		}
+	}
+	if second != 1 {
+		t.Errorf("the server holds %d records by MH, want the second phone's 1", second)
 	}
 }
 
@@ -659,7 +778,7 @@ func checkServerHolds(t *testing.T, ps *phoneServer, onPhone []phoneCapture) {
 func TestPhoneAppInstallableInBrowser(t *testing.T) {
 	ps := newPhoneServer(t)
 	p := openPhone(t, t.TempDir(), ps.url(), 360, 740, [2]float64{52.61, 1.35})
-	p.join("JW")
+	p.join(ps.joinCode(), "JW", true)
 	p.waitServiceWorker()
 	man, err := chromedp.Call(p.ctx, cdppage.GetAppManifest, cdppage.GetAppManifestParams{})
 	if err != nil {
@@ -790,14 +909,19 @@ func TestPhoneCaptureScreenInBrowser(t *testing.T) {
 	}
 	p := openPhone(t, t.TempDir(), ps.url(), 360, 740, [2]float64{52.6103, 1.3500})
 	lowest := 21.0
-	p.wait(`document.querySelector("#study-list button") !== null`)
+	p.joinScreen(ps.joinCode(), false)
 	lowest = min(lowest, p.checkLayout("join", 320, 360))
-	p.do(chromedp.SendKeys(chromedp.ID("observer"), "JW"))
-	p.click("#study-list button")
-	p.wait(`!document.getElementById("screen-cautions").hidden`)
+	// Without initials the phone does not join: they go on every record.
+	p.click("#join-submit")
+	p.wait(`document.getElementById("join-code-error").textContent.includes("initials")`)
+	lowest = min(lowest, p.checkLayout("join (no initials)", 320, 360))
+	p.shot("phone-join-360x740.png", false)
+	if n := len(ps.deviceTokens()); n != 0 {
+		t.Errorf("the phone joined without initials (%d phone tokens)", n)
+	}
+	p.submitJoin("JW")
 	lowest = min(lowest, p.checkLayout("cautions", 320, 360))
-	p.click("#accept-cautions")
-	p.wait(`!document.getElementById("screen-record").hidden`)
+	p.acceptCautions()
 	p.wait(`document.getElementById("last-sync").textContent !== "never" && document.getElementById("gps-line").textContent.startsWith("Position: 52.61")`)
 
 	for _, f := range []struct{ id, mode string }{{"tag", "numeric"}, {"old-tag", "numeric"}, {"mass", "decimal"}, {"m-hind-foot", "decimal"}} {
@@ -815,6 +939,10 @@ func TestPhoneCaptureScreenInBrowser(t *testing.T) {
 		t.Errorf("recapture status does not show the animal's last record: %q", status)
 	}
 	p.do(chromedp.Evaluate[chromedp.Void](`window.scrollTo(0, 0)`))
+	// The "study is ready" message lies over the header for a few
+	// seconds after joining; the picture is of the screen the crew works
+	// with, study name and sync state in view.
+	p.wait(`document.getElementById("toast").hidden`)
 	p.shot("phone-capture-360x740.png", false)
 	p.shot("phone-capture-360-full.png", true)
 	lowest = min(lowest, p.checkLayout("record", 320, 360))
@@ -850,7 +978,7 @@ func TestPhoneCaptureScreenInBrowser(t *testing.T) {
 func TestPhoneBackupFileInBrowser(t *testing.T) {
 	ps := newPhoneServer(t)
 	p := openPhone(t, t.TempDir(), ps.url(), 360, 740, [2]float64{52.6103, 1.3500})
-	p.join("JW")
+	p.join(ps.joinCode(), "JW", true)
 	p.waitServiceWorker()
 	ps.stop()
 	for i, e := range []entry{
@@ -885,9 +1013,17 @@ func TestPhoneBackupFileInBrowser(t *testing.T) {
 		t.Fatalf("backup file %q (%v): want the 3 waiting records of study %s", file, err, ps.study.ID)
 	}
 
-	// The coordinator imports the file at camp.
+	// The coordinator imports the file at camp: importing needs the
+	// coordinator's role.
 	ps.start()
-	resp, err := http.Post(ps.url()+"/api/v1/studies/"+ps.study.ID+"/import?name=phone-backup.json", "application/json", bytes.NewReader(file))
+	coord, _ := issue(t, ps.srv, access.NewToken{Kind: access.KindCoordinator, Label: "test coordinator"})
+	req, err := http.NewRequest(http.MethodPost, ps.url()+"/api/v1/studies/"+ps.study.ID+"/import?name=phone-backup.json", bytes.NewReader(file))
+	if err != nil {
+		t.Fatal(err)
+	}
+	req.Header.Set("Content-Type", "application/json")
+	req.Header.Set("Authorization", "Bearer "+coord)
+	resp, err := http.DefaultClient.Do(req)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -929,7 +1065,8 @@ func TestPhoneBackupFileInBrowser(t *testing.T) {
 		t.Fatal(err)
 	}
 	p.do(chromedp.Reload())
-	p.wait(`!document.getElementById("vanished-banner").hidden && !document.getElementById("screen-join").hidden`)
+	// Its token went with them: the phone must join again.
+	p.wait(`!document.getElementById("vanished-banner").hidden && document.getElementById("screen-enrol") !== null && !document.getElementById("screen-enrol").hidden`)
 }
 
 // TestPhoneAppUpdatesInBrowser checks that opening the page from the
@@ -973,7 +1110,7 @@ func TestPhoneAppUpdatesInBrowser(t *testing.T) {
 	t.Cleanup(hs.Close)
 
 	p := openPhone(t, t.TempDir(), hs.URL, 360, 740, [2]float64{52.61, 1.35})
-	p.join("JW")
+	p.join(ps.joinCode(), "JW", false)
 	p.waitServiceWorker()
 	// The app stays open all day: the new build is found when it syncs.
 	build.Store("next-build")

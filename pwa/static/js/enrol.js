@@ -62,14 +62,19 @@ function el(tag, props = {}, ...kids) {
 
 let screen = null;
 
-// showJoinScreen shows the join step; onJoined gets the server's answer.
-// code fills the box (from the address).
-export function showJoinScreen(deviceName, onJoined, code = "") {
+// showJoinScreen shows the join step; onJoined gets the server's answer
+// and the initials typed. code fills the box (from the address); observer
+// fills the initials, which every record carries (the study list's
+// initials field is not on this screen). A code from the address is sent
+// at once only when the initials are known (a phone joining again);
+// otherwise the crew types them first.
+export function showJoinScreen(deviceName, onJoined, code = "", observer = "") {
   if (!screen) {
     screen = el("section", { id: "screen-enrol", className: "screen" });
     document.querySelector("main").prepend(screen);
   }
   const input = el("input", { id: "join-code", autocomplete: "off", autocapitalize: "characters", spellcheck: false, maxLength: 40, value: code, placeholder: "e.g. K7QM-3XTA-9PWE" });
+  const who = el("input", { id: "join-observer", autocomplete: "name", maxLength: 60, value: observer });
   const name = el("input", { id: "join-device", maxLength: 80, value: deviceName });
   const err = el("p", { className: "error", id: "join-code-error", role: "alert" });
   const button = el("button", { type: "submit", className: "big primary", id: "join-submit", textContent: "Join" });
@@ -77,9 +82,15 @@ export function showJoinScreen(deviceName, onJoined, code = "") {
   form.addEventListener("submit", async (ev) => {
     ev.preventDefault();
     err.textContent = "";
+    const initials = who.value.trim();
+    if (!initials) {
+      err.textContent = "Enter your name or initials: they are saved on each record.";
+      who.focus();
+      return;
+    }
     button.disabled = true;
     try {
-      onJoined(await join(input.value.trim(), name.value.trim() || deviceName));
+      onJoined(await join(input.value.trim(), name.value.trim() || deviceName), initials);
     } catch (e) {
       err.textContent = `${e.message}`;
     } finally {
@@ -88,6 +99,7 @@ export function showJoinScreen(deviceName, onJoined, code = "") {
   });
   form.append(
     el("label", { htmlFor: "join-code", textContent: "Join code" }), input,
+    el("label", { htmlFor: "join-observer", textContent: "Your name or initials (saved on each record)" }), who,
     el("label", { htmlFor: "join-device", textContent: "Name of this phone (the coordinator sees it)" }), name,
     err, button,
   );
@@ -97,7 +109,8 @@ export function showJoinScreen(deviceName, onJoined, code = "") {
     form,
   );
   for (const s of document.querySelectorAll(".screen")) s.hidden = s !== screen;
-  if (code) form.requestSubmit();
+  if (code && observer.trim()) form.requestSubmit();
+  else if (code) who.focus();
 }
 
 let banner = null;

@@ -186,14 +186,18 @@ async function showJoin() {
 // showEnrol shows the join step; once joined, the phone opens the study
 // its code was for.
 function showEnrol(code = "") {
-  enrol.showJoinScreen(state.device, (ans) => {
+  enrol.showJoinScreen(state.device, (ans, observer) => {
+    // joinStudy reads the initials from the study list's field.
+    $("observer").value = observer;
+    state.observer = observer;
+    db.setMeta("observer", observer).catch((e) => console.warn("initials not kept:", e));
     const studyID = (ans.studies || [])[0];
     if (state.study && state.study.id === studyID) {
       show("record");
       syncSoon();
     } else if (studyID) joinStudy(studyID);
     else showJoin();
-  }, code);
+  }, code, state.observer);
 }
 
 async function joinStudy(id) {
@@ -205,6 +209,9 @@ async function joinStudy(id) {
     await useStudy(study, true);
     syncSoon();
   } catch (e) {
+    // After joining by code the study list is not on the screen: show
+    // it, so the error is seen and the study can be tapped to try again.
+    if ($("screen-join").hidden) await showJoin();
     $("join-error").textContent = `Could not load the study: ${e.message}`;
   }
 }
