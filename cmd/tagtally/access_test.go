@@ -15,7 +15,6 @@ import (
 	"tagtally/capture/storetest"
 )
 
-
 var claimLink = regexp.MustCompile(`http://localhost:\d+/coord/#claim=([A-Za-z0-9_-]{43})`)
 
 // claimStatus exchanges a claim code at base and returns the status.

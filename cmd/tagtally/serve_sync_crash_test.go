@@ -22,7 +22,6 @@ import (
 	tsync "tagtally/sync"
 )
 
-
 // serveScheduled starts `tagtally serve` with its scheduled sync with peer
 // and extra environment variables.
 func serveScheduled(t *testing.T, bin, data string, port int, peer string, every time.Duration, env ...string) (*exec.Cmd, *lockedBuffer) {

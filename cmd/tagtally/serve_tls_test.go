@@ -224,4 +224,3 @@ func TestTLSFlagsValidate(t *testing.T) {
 		t.Errorf("%s: %+v %v", envTLS, cfg, err)
 	}
 }
-
