@@ -46,20 +46,7 @@ func TestServeAccessEndToEnd(t *testing.T) {
 	data := filepath.Join(t.TempDir(), "camp.db")
 	port := freePort(t)
 	base := fmt.Sprintf("http://127.0.0.1:%d", port)
-	out := new(lockedBuffer)
-	cmd := exec.Command(bin, "serve", "--data", data, "--host", "127.0.0.1", "--port", fmt.Sprint(port), "--no-tls")
-	cmd.Stdout, cmd.Stderr = out, out
-	if err := cmd.Start(); err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() {
-		if cmd.ProcessState == nil {
-			cmd.Process.Kill()
-			cmd.Wait()
-		}
-	})
-	waitHealthy(t, base)
-	rememberToken(t, base, data)
+	cmd, out := startServeProcess(t, bin, data, port, nil, "--no-tls")
 	var first string
 	for deadline := time.Now().Add(10 * time.Second); first == "" && time.Now().Before(deadline); time.Sleep(20 * time.Millisecond) {
 		if m := claimLink.FindStringSubmatch(out.String()); m != nil {

@@ -32,10 +32,21 @@ func buildBinary(t *testing.T) string {
 
 // startServe starts `tagtally serve` on a loopback port and waits until it
 // answers.
-func startServe(t *testing.T, bin, data string, port int) (*exec.Cmd, *bytes.Buffer) {
+func startServe(t *testing.T, bin, data string, port int) (*exec.Cmd, *lockedBuffer) {
 	t.Helper()
-	out := new(bytes.Buffer)
-	cmd := exec.Command(bin, "serve", "--data", data, "--host", "127.0.0.1", "--port", fmt.Sprint(port))
+	return startServeProcess(t, bin, data, port, nil)
+}
+
+// startServeProcess starts `tagtally serve` for data on a loopback port,
+// with extra environment variables and options; it waits until the server
+// answers, remembers its local coordinator token (written anew at each
+// start) and kills it at the end of the test if it still runs. Every test
+// that runs the real server starts it here.
+func startServeProcess(t *testing.T, bin, data string, port int, env []string, args ...string) (*exec.Cmd, *lockedBuffer) {
+	t.Helper()
+	out := new(lockedBuffer)
+	cmd := exec.Command(bin, append([]string{"serve", "--data", data, "--host", "127.0.0.1", "--port", fmt.Sprint(port)}, args...)...)
+	cmd.Env = append(os.Environ(), env...)
 	cmd.Stdout, cmd.Stderr = out, out
 	if err := cmd.Start(); err != nil {
 		t.Fatal(err)

@@ -26,24 +26,7 @@ import (
 // and extra environment variables.
 func serveScheduled(t *testing.T, bin, data string, port int, peer string, every time.Duration, env ...string) (*exec.Cmd, *lockedBuffer) {
 	t.Helper()
-	out := new(lockedBuffer)
-	cmd := exec.Command(bin, "serve", "--data", data, "--host", "127.0.0.1", "--port", fmt.Sprint(port),
-		"--sync-peer", peer, "--sync-every", every.String())
-	cmd.Env = append(os.Environ(), env...)
-	cmd.Stdout, cmd.Stderr = out, out
-	if err := cmd.Start(); err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() {
-		if cmd.ProcessState == nil {
-			cmd.Process.Kill()
-			cmd.Wait()
-		}
-	})
-	base := fmt.Sprintf("http://127.0.0.1:%d", port)
-	waitHealthy(t, base)
-	rememberToken(t, base, data) // each start writes a new local token
-	return cmd, out
+	return startServeProcess(t, bin, data, port, env, "--sync-peer", peer, "--sync-every", every.String())
 }
 
 // peerSyncLog is one "peer sync" line of serve's log (startPeerSync).

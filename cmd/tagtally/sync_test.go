@@ -27,22 +27,7 @@ import (
 // serveWithEnv starts `tagtally serve` with extra environment variables.
 func serveWithEnv(t *testing.T, bin, data string, port int, env ...string) *exec.Cmd {
 	t.Helper()
-	out := new(bytes.Buffer)
-	cmd := exec.Command(bin, "serve", "--data", data, "--host", "127.0.0.1", "--port", fmt.Sprint(port))
-	cmd.Env = append(os.Environ(), env...)
-	cmd.Stdout, cmd.Stderr = out, out
-	if err := cmd.Start(); err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() {
-		if cmd.ProcessState == nil {
-			cmd.Process.Kill()
-			cmd.Wait()
-		}
-	})
-	base := fmt.Sprintf("http://127.0.0.1:%d", port)
-	waitHealthy(t, base)
-	rememberToken(t, base, data)
+	cmd, _ := startServeProcess(t, bin, data, port, env)
 	return cmd
 }
 
