@@ -1123,3 +1123,23 @@ func TestPhoneAppUpdatesInBrowser(t *testing.T) {
 		t.Errorf("after the update the page is %q, want the new build's page", title)
 	}
 }
+
+// TestPhoneJoinLinkOnOpenAppInBrowser: a join link opened while the app is
+// already open (the phone's camera hands the link to the open app page)
+// changes only the address's #part, which reloads nothing; the app must
+// still take the code and offer the join step with it.
+func TestPhoneJoinLinkOnOpenAppInBrowser(t *testing.T) {
+	ps := newPhoneServer(t)
+	p := openPhone(t, t.TempDir(), ps.url(), 360, 740, [2]float64{52.61, 1.35})
+	p.join(ps.joinCode(), "JW", true)
+	second := ps.joinCode()
+	// Same document: only the fragment changes, so no reload happens.
+	evalAs[string](p.page, `location.hash = "#join=`+second+`"`)
+	p.wait(`(() => { const s = document.getElementById("screen-enrol"); return s !== null && !s.hidden; })()`)
+	if got := evalAs[string](p.page, `document.getElementById("join-code").value`); got != second {
+		t.Fatalf("join code box holds %q, want the link's %q", got, second)
+	}
+	if h := evalAs[string](p.page, `location.hash`); h != "" {
+		t.Errorf("the join code stays in the address: %q", h)
+	}
+}

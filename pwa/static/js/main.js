@@ -58,6 +58,12 @@ async function start() {
     if (document.visibilityState === "visible") syncSoon();
   });
   window.addEventListener("online", syncSoon);
+  // A join link opened while the app is already open changes only the
+  // address's #fragment, which reloads nothing: take the code from it.
+  window.addEventListener("hashchange", () => {
+    const newCode = enrol.codeFromAddress();
+    if (newCode) showEnrol(newCode);
+  });
   setInterval(syncSoon, SYNC_EVERY_MS);
 }
 
