@@ -115,11 +115,6 @@ func TestPhoneSyncsByItselfEditsAndRefusalsInBrowser(t *testing.T) {
 	t0 := time.Now()
 	mark := func(what string) { t.Logf("%5.1f s %s", time.Since(t0).Seconds(), what) }
 	ps := newPhoneServer(t)
-	// The browser keeps spare connections open that have sent no request
-	// yet; a graceful shutdown counts them as busy until they are 5 s old
-	// (net/http), so the server is stopped twice here while the phone has
-	// just used it, it is given longer than the usual 3 s.
-	ps.srv.cfg.ShutdownTimeout = 10 * time.Second
 	p := openPhone(t, t.TempDir(), ps.url(), 360, 740, [2]float64{52.6103, 1.3500})
 	dialogs := p.acceptDialogs()
 	p.join(ps.joinCode(), "JW", false)
