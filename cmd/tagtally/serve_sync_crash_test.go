@@ -2,10 +2,8 @@ package main
 
 import (
 	"bytes"
-	"encoding/json"
 	"errors"
 	"fmt"
-	"net/http"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -106,21 +104,8 @@ func pullAfter(t *testing.T, base, cursor, skipSource string) []string {
 	t.Helper()
 	var ids []string
 	for {
-		resp, err := http.Get(fmt.Sprintf("%s/api/v1/sync/pull?limit=1000&cursor=%s&skip_source=%s", base, cursor, skipSource))
-		if err != nil {
-			t.Fatal(err)
-		}
-		var page tsync.PullPage
-		err = json.NewDecoder(resp.Body).Decode(&page)
-		resp.Body.Close()
-		if err != nil {
-			t.Fatal(err)
-		}
-		for _, raw := range page.Revisions {
-			var c capture.Capture
-			if err := json.Unmarshal(raw, &c); err != nil {
-				t.Fatal(err)
-			}
+		page := getPullPage(t, base, fmt.Sprintf("limit=1000&cursor=%s&skip_source=%s", cursor, skipSource))
+		for _, c := range pageRevisions(t, page.Revisions) {
 			ids = append(ids, c.Revision.ID)
 		}
 		cursor = page.Next
@@ -221,11 +206,7 @@ func TestServeScheduledSyncCrashBeforePushCheckpoint(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		for _, raw := range page.Revisions {
-			var c capture.Capture
-			if err := json.Unmarshal(raw, &c); err != nil {
-				t.Fatal(err)
-			}
+		for _, c := range pageRevisions(t, page.Revisions) {
 			toSend = append(toSend, c.Revision.ID)
 		}
 		cursor = page.Next

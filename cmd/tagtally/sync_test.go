@@ -110,21 +110,8 @@ func feed(t *testing.T, base string) map[string]capture.Capture {
 	out := map[string]capture.Capture{}
 	cursor := ""
 	for {
-		resp, err := http.Get(base + "/api/v1/sync/pull?limit=1000&cursor=" + cursor)
-		if err != nil {
-			t.Fatal(err)
-		}
-		var page tsync.PullPage
-		err = json.NewDecoder(resp.Body).Decode(&page)
-		resp.Body.Close()
-		if err != nil {
-			t.Fatal(err)
-		}
-		for _, raw := range page.Revisions {
-			var c capture.Capture
-			if err := json.Unmarshal(raw, &c); err != nil {
-				t.Fatal(err)
-			}
+		page := getPullPage(t, base, "limit=1000&cursor="+cursor)
+		for _, c := range pageRevisions(t, page.Revisions) {
 			if _, dup := out[c.Revision.ID]; dup {
 				t.Fatalf("%s: revision %s is in the feed twice", base, c.Revision.ID)
 			}
@@ -135,6 +122,34 @@ func feed(t *testing.T, base string) map[string]capture.Capture {
 			return out
 		}
 	}
+}
+
+// getPullPage fetches one page of a server's change feed over HTTP; query
+// is the URL query (limit, cursor, skip_source).
+func getPullPage(t *testing.T, base, query string) tsync.PullPage {
+	t.Helper()
+	resp, err := http.Get(base + "/api/v1/sync/pull?" + query)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer resp.Body.Close()
+	var page tsync.PullPage
+	if err := json.NewDecoder(resp.Body).Decode(&page); err != nil {
+		t.Fatal(err)
+	}
+	return page
+}
+
+// pageRevisions decodes a feed page's revisions.
+func pageRevisions(t *testing.T, raws []json.RawMessage) []capture.Capture {
+	t.Helper()
+	out := make([]capture.Capture, len(raws))
+	for i, raw := range raws {
+		if err := json.Unmarshal(raw, &out[i]); err != nil {
+			t.Fatal(err)
+		}
+	}
+	return out
 }
 
 func history(t *testing.T, base, id string) tsync.History {
@@ -477,11 +492,7 @@ func checkpointsBehindData(t *testing.T, data, peer string, peerFeed map[string]
 		if err != nil {
 			t.Fatal(err)
 		}
-		for _, raw := range page.Revisions {
-			var c capture.Capture
-			if err := json.Unmarshal(raw, &c); err != nil {
-				t.Fatal(err)
-			}
+		for _, c := range pageRevisions(t, page.Revisions) {
 			here[c.Revision.ID] = true
 			seq++
 			if cp.LocalEpoch == e.Epoch() && seq <= cp.Pushed {
@@ -507,24 +518,11 @@ func checkpointsBehindData(t *testing.T, data, peer string, peerFeed map[string]
 		}
 	}
 	for cursor, seq := "", uint64(0); seq < pulled; {
-		resp, err := http.Get(fmt.Sprintf("%s/api/v1/sync/pull?limit=%d&cursor=%s", peer, min(pulled-seq, tsync.MaxPullLimit), cursor))
-		if err != nil {
-			t.Fatal(err)
-		}
-		var page tsync.PullPage
-		err = json.NewDecoder(resp.Body).Decode(&page)
-		resp.Body.Close()
-		if err != nil {
-			t.Fatal(err)
-		}
+		page := getPullPage(t, peer, fmt.Sprintf("limit=%d&cursor=%s", min(pulled-seq, tsync.MaxPullLimit), cursor))
 		if page.Epoch != cp.PeerEpoch {
 			t.Fatalf("the peer's epoch is %s, the pull cursor's %s", page.Epoch, cp.PeerEpoch)
 		}
-		for _, raw := range page.Revisions {
-			var c capture.Capture
-			if err := json.Unmarshal(raw, &c); err != nil {
-				t.Fatal(err)
-			}
+		for _, c := range pageRevisions(t, page.Revisions) {
 			seq++
 			if !here[c.Revision.ID] {
 				t.Fatalf("pull cursor at %d covers revision %s (peer feed entry %d), which is not here", pulled, c.Revision.ID, seq)
