@@ -15,7 +15,9 @@ import (
 	"crypto/sha256"
 	"embed"
 	"encoding/hex"
+	"errors"
 	"io/fs"
+	"regexp"
 	"sort"
 )
 
@@ -53,4 +55,29 @@ func Version() string {
 		h.Write(b)
 	}
 	return hex.EncodeToString(h.Sum(nil))[:16]
+}
+
+var (
+	shellList = regexp.MustCompile(`(?s)const SHELL = \[(.*?)\];`)
+	shellPath = regexp.MustCompile(`"(/[^"]*)"`)
+)
+
+// ShellFiles lists, sorted, the URL paths the service worker keeps for
+// offline use (its SHELL list in sw.js): the app shell whose size and
+// caching the tests check.
+func ShellFiles() ([]string, error) {
+	sw, err := fs.ReadFile(Files(), "sw.js")
+	if err != nil {
+		return nil, err
+	}
+	list := shellList.FindSubmatch(sw)
+	if list == nil {
+		return nil, errors.New("sw.js has no SHELL list")
+	}
+	var out []string
+	for _, m := range shellPath.FindAllSubmatch(list[1], -1) {
+		out = append(out, string(m[1]))
+	}
+	sort.Strings(out)
+	return out, nil
 }

@@ -6,14 +6,12 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
-	"io/fs"
 	"log/slog"
 	"net"
 	"net/http"
 	"net/http/httptest"
 	"os"
 	"path/filepath"
-	"regexp"
 	"slices"
 	"sort"
 	"strings"
@@ -355,20 +353,11 @@ func (p phone) waitServiceWorker() {
 // shellFiles is the service worker's list of shell files, sorted.
 func shellFiles(t *testing.T) []string {
 	t.Helper()
-	sw, err := fs.ReadFile(pwa.Files(), "sw.js")
+	files, err := pwa.ShellFiles()
 	if err != nil {
 		t.Fatal(err)
 	}
-	list := regexp.MustCompile(`(?s)const SHELL = \[(.*?)\];`).FindSubmatch(sw)
-	if list == nil {
-		t.Fatal("sw.js has no SHELL list")
-	}
-	var out []string
-	for _, m := range regexp.MustCompile(`"(/[^"]*)"`).FindAllSubmatch(list[1], -1) {
-		out = append(out, string(m[1]))
-	}
-	sort.Strings(out)
-	return out
+	return files
 }
 
 // entry is one capture as the crew enters it on the form.
