@@ -134,20 +134,7 @@ func TestJollySeberJolly1965(t *testing.T) {
 // with z_i > 0 and m_i = 0 leave estimates undefined; they must be noted
 // and absent, never NaN or Inf.
 func TestJollySeberUnadjustedDegenerate(t *testing.T) {
-	m := MArray{
-		Released: []int{20, 25, 30, 30, 0},
-		M: [][]int{
-			{0, 0, 4, 2, 1},
-			{0, 0, 0, 5, 3},
-			{0, 0, 0, 0, 0},
-			{0, 0, 0, 0, 9},
-			{0, 0, 0, 0, 0},
-		},
-	}
-	s, err := Summarize(m, []int{20, 25, 34, 30, 28})
-	if err != nil {
-		t.Fatal(err)
-	}
+	s := degenerateSummary(t)
 	res, err := JollySeberUnadjusted(s)
 	if err != nil {
 		t.Fatal(err)

@@ -131,22 +131,7 @@ func TestJollySeberHand(t *testing.T) {
 // TestJollySeberDegenerate: zero cells are flagged with notes and never
 // produce NaN (the result must encode as JSON).
 func TestJollySeberDegenerate(t *testing.T) {
-	// Occasion 3's releases are never seen again (r3 = 0), and no marked
-	// animal is caught on occasion 2 (m2 = 0).
-	m := MArray{
-		Released: []int{20, 25, 30, 30, 0},
-		M: [][]int{
-			{0, 0, 4, 2, 1},
-			{0, 0, 0, 5, 3},
-			{0, 0, 0, 0, 0},
-			{0, 0, 0, 0, 9},
-			{0, 0, 0, 0, 0},
-		},
-	}
-	s, err := Summarize(m, []int{20, 25, 34, 30, 28})
-	if err != nil {
-		t.Fatal(err)
-	}
+	s := degenerateSummary(t)
 	res, err := JollySeber(s)
 	if err != nil {
 		t.Fatal(err)
@@ -215,4 +200,26 @@ func ExampleJollySeber() {
 	// occasion 2: N = 195.7 (SE 65.3, 95% CI 115-392)
 	// occasion 3: N = 227.1 (SE 63.5, 95% CI 143-407)
 	// occasion 4: N = 137.9 (SE 35.1, 95% CI 94-241)
+}
+
+// degenerateSummary is an invented m-array with zero cells: occasion 3's
+// releases are never seen again (r3 = 0), and no marked animal is caught
+// on occasion 2 (m2 = 0).
+func degenerateSummary(t *testing.T) Summary {
+	t.Helper()
+	m := MArray{
+		Released: []int{20, 25, 30, 30, 0},
+		M: [][]int{
+			{0, 0, 4, 2, 1},
+			{0, 0, 0, 5, 3},
+			{0, 0, 0, 0, 0},
+			{0, 0, 0, 0, 9},
+			{0, 0, 0, 0, 0},
+		},
+	}
+	s, err := Summarize(m, []int{20, 25, 34, 30, 28})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return s
 }
