@@ -13,7 +13,11 @@ export function changeHeaders() {
   return csrf ? { "X-CSRF-Token": csrf } : {};
 }
 
-async function call(path, options = {}) {
+// api calls the server's API and returns the decoded answer; a refusal
+// throws an Error with the server's message, status and field. Every
+// coordinator page sends its requests through here, so no change can go
+// without the CSRF header.
+export async function api(path, options = {}) {
   const method = options.method || "GET";
   const headers = { Accept: "application/json", ...(options.body ? { "Content-Type": "application/json" } : {}), ...(method === "GET" ? {} : changeHeaders()) };
   const res = await fetch(API + path, { cache: "no-store", ...options, headers });
@@ -27,6 +31,7 @@ async function call(path, options = {}) {
   if (!res.ok) {
     const err = new Error(body && body.error ? body.error : `the server answered ${res.status}`);
     err.status = res.status;
+    err.field = body && body.field;
     throw err;
   }
   return body;
@@ -42,7 +47,7 @@ export async function signIn() {
     // the history before anything else.
     history.replaceState(null, "", location.pathname + location.search + "#summary");
     try {
-      const ans = await call("/access/claim", { method: "POST", body: JSON.stringify({ code: m[1] }) });
+      const ans = await api("/access/claim", { method: "POST", body: JSON.stringify({ code: m[1] }) });
       csrf = ans.csrf || "";
       return true;
     } catch (err) {
@@ -54,7 +59,7 @@ export async function signIn() {
     }
   }
   try {
-    const me = await call("/access/me");
+    const me = await api("/access/me");
     csrf = me.csrf || "";
     return me.role === "coordinator";
   } catch (err) {
@@ -92,14 +97,14 @@ const kindWords = {
 
 // viewAccess draws the Access page for the chosen study.
 export async function viewAccess({ h, show, study, studyName }) {
-  const [{ tokens }, { entries }] = await Promise.all([call("/access/tokens"), call("/access/audit?limit=100")]);
+  const [{ tokens }, { entries }] = await Promise.all([api("/access/tokens"), api("/access/audit?limit=100")]);
 
   // Join codes.
   const codeOut = h("div", { id: "join-code-out", "aria-live": "polite" });
   const makeCode = async (role) => {
     codeOut.replaceChildren(h("p", { class: "muted" }, "Making a code…"));
     try {
-      const jc = await call(`/studies/${encodeURIComponent(study)}/join-codes`, { method: "POST", body: JSON.stringify({ role }) });
+      const jc = await api(`/studies/${encodeURIComponent(study)}/join-codes`, { method: "POST", body: JSON.stringify({ role }) });
       codeOut.replaceChildren(h("div", { class: "join-code panel" },
         h("img", { src: `data:image/png;base64,${jc.qr_png}`, alt: `QR code of the join link for ${studyName}`, class: "qr" }),
         h("div", {},
@@ -122,7 +127,7 @@ export async function viewAccess({ h, show, study, studyName }) {
     }
     btn.disabled = true;
     try {
-      await call(`/access/tokens/${encodeURIComponent(t.id)}/revoke`, { method: "POST" });
+      await api(`/access/tokens/${encodeURIComponent(t.id)}/revoke`, { method: "POST" });
       btn.replaceWith(h("span", { class: "revoked" }, "revoked just now"));
     } catch (err) {
       btn.disabled = false;
@@ -144,7 +149,7 @@ export async function viewAccess({ h, show, study, studyName }) {
   const peerLabel = h("input", { id: "peer-label", maxlength: "80", placeholder: "e.g. program office" });
   const makePeer = async () => {
     try {
-      const t = await call("/access/tokens", { method: "POST", body: JSON.stringify({ kind: "peer", label: peerLabel.value.trim() || "other server", studies: [study] }) });
+      const t = await api("/access/tokens", { method: "POST", body: JSON.stringify({ kind: "peer", label: peerLabel.value.trim() || "other server", studies: [study] }) });
       peerOut.replaceChildren(h("div", { class: "panel" },
         h("p", {}, "Give this token to the other server's operator (tagtally sync --token). It is shown only now:"),
         h("p", { class: "code", id: "peer-token-text" }, t.token),

@@ -5,7 +5,7 @@
 // the page with textContent, never as HTML.
 
 import { barChart, bandChart, intervalChart } from "./plot.js";
-import { changeHeaders, signIn, signedOut, viewAccess } from "./access.js";
+import { api, changeHeaders, signIn, signedOut, viewAccess } from "./access.js";
 
 const API = "/api/v1";
 const state = { studies: [], study: "", view: "summary" };
@@ -28,25 +28,6 @@ function h(tag, attrs = {}, ...kids) {
     e.append(typeof k === "string" || typeof k === "number" ? document.createTextNode(String(k)) : k);
   }
   return e;
-}
-
-async function api(path, options = {}) {
-  const change = options.method && options.method !== "GET" ? changeHeaders() : {};
-  const res = await fetch(API + path, { cache: "no-store", headers: { Accept: "application/json", ...(options.body ? { "Content-Type": "application/json" } : {}), ...change }, ...options });
-  const text = await res.text();
-  let body = null;
-  try {
-    body = text ? JSON.parse(text) : null;
-  } catch {
-    body = null;
-  }
-  if (!res.ok) {
-    const err = new Error(body && body.error ? body.error : `the server answered ${res.status}`);
-    err.status = res.status;
-    err.field = body && body.field;
-    throw err;
-  }
-  return body;
 }
 
 const sp = (id) => `/studies/${encodeURIComponent(id)}`;
