@@ -177,6 +177,22 @@ func TestJoinGuessingHitsTheLimit(t *testing.T) {
 	if rec.Code != 429 || rec.Header().Get("Retry-After") == "" || !strings.Contains(rec.Body.String(), "too many attempts") {
 		t.Fatalf("attempt past the limit = %d %v %s, want 429 with Retry-After", rec.Code, rec.Header(), rec.Body)
 	}
+	// Refusals past the limit are not written to the audit log, or a
+	// guesser could fill the data file.
+	auditLen := func() int {
+		entries, err := ts.srv.Access().Audit(10000, 0)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return len(entries)
+	}
+	before := auditLen()
+	for i := 0; i < 20; i++ {
+		join("192.0.2.50", "CCCC-CCCC-CCCC")
+	}
+	if after := auditLen(); after != before {
+		t.Errorf("20 refusals past the limit added %d audit entries, want none", after-before)
+	}
 	// Coordinator-link claims count against the same limit.
 	claim := httptest.NewRequest("POST", "/api/v1/access/claim", strings.NewReader(`{"code":"`+strings.Repeat("A", 43)+`"}`))
 	claim.Header.Set("Content-Type", "application/json")

@@ -2,6 +2,7 @@ package server
 
 import (
 	"crypto/subtle"
+	"errors"
 	"fmt"
 	"net"
 	"net/http"
@@ -83,9 +84,11 @@ func (s *Server) guard(r route) echo.MiddlewareFunc {
 					tok = tokenOf(c) // a claim or join names the token it made
 				}
 				// Requests without a valid token are audited only where
-				// attempts are limited (claim, join): elsewhere anyone on
-				// the network could fill the data file with refusals.
-				if tok != nil || r.need.attempt {
+				// attempts are limited (claim, join), and only those let
+				// through the limit: elsewhere, or past it, anyone on the
+				// network could fill the data file with refusals.
+				throttled := errors.Is(err, access.ErrTooManyAttempts)
+				if tok != nil || (r.need.attempt && !throttled) {
 					s.audit(c, r, tok, err)
 				} else {
 					s.log.Info("refused a change without a valid token", "method", c.Request().Method, "path", c.Request().URL.Path, "client", clientIP(c.Request()))
