@@ -97,13 +97,19 @@ func serve(ctx context.Context, cfg config, withDemo bool, stdout io.Writer) (er
 	}
 	scfg := server.DefaultConfig()
 	scfg.Addr = net.JoinHostPort(cfg.Host, strconv.Itoa(cfg.Port))
-	// Join links name the camp's HTTPS address once the certificates exist.
+	// Join links name the camp's HTTPS address once the certificates
+	// exist; with --no-tls, the plain address phones reach (never the
+	// localhost the coordinator's own browser uses).
 	var phoneCerts atomic.Pointer[camptls.Manager]
+	var plainPort atomic.Int64
 	scfg.PhoneAddress = func() string {
 		if m := phoneCerts.Load(); m != nil {
 			if a := m.Addresses(); len(a) > 0 {
 				return a[0]
 			}
+		}
+		if p := plainPort.Load(); p != 0 {
+			return plainPhoneAddress(cfg.Host, int(p), lanAddresses())
 		}
 		return ""
 	}
@@ -128,6 +134,7 @@ func serve(ctx context.Context, cfg config, withDemo bool, stdout io.Writer) (er
 	}
 	defer stopToken()
 	if cfg.NoTLS {
+		plainPort.Store(int64(port))
 		printAddresses(stdout, cfg, port, nil)
 		if err := printClaimLink(stdout, srv, port); err != nil {
 			ln.Close()
@@ -249,6 +256,19 @@ func printAddresses(w io.Writer, cfg config, port int, certs *camptls.Manager) {
 	}
 	fmt.Fprintf(w, "API:   http://%s/api/v1 lists the endpoints\n", net.JoinHostPort(host, portStr))
 	fmt.Fprintln(w, "Stop with Ctrl+C (records being saved are finished first).")
+}
+
+// plainPhoneAddress is the plain-HTTP address phones open: the listen
+// host when one is given, else the first LAN address; "" when there is
+// none (join links then name the address the coordinator's request used).
+func plainPhoneAddress(host string, port int, lan []string) string {
+	if host != "" && !net.ParseIP(host).IsUnspecified() {
+		return "http://" + net.JoinHostPort(host, strconv.Itoa(port))
+	}
+	if len(lan) > 0 {
+		return "http://" + net.JoinHostPort(lan[0], strconv.Itoa(port))
+	}
+	return ""
 }
 
 // lanAddresses lists this machine's non-loopback IPv4 addresses on

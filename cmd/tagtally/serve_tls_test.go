@@ -224,3 +224,23 @@ func TestTLSFlagsValidate(t *testing.T) {
 		t.Errorf("%s: %+v %v", envTLS, cfg, err)
 	}
 }
+
+// With --no-tls, join links must name an address phones reach, not the
+// localhost of the coordinator's browser.
+func TestPlainPhoneAddress(t *testing.T) {
+	for _, tc := range []struct {
+		host string
+		lan  []string
+		want string
+	}{
+		{"", []string{"192.0.2.10", "fd00::2"}, "http://192.0.2.10:8080"},
+		{"0.0.0.0", []string{"192.0.2.10"}, "http://192.0.2.10:8080"},
+		{"198.51.100.4", []string{"192.0.2.10"}, "http://198.51.100.4:8080"},
+		{"", []string{"fd00::2"}, "http://[fd00::2]:8080"},
+		{"", nil, ""},
+	} {
+		if got := plainPhoneAddress(tc.host, 8080, tc.lan); got != tc.want {
+			t.Errorf("plainPhoneAddress(%q, 8080, %v) = %q, want %q", tc.host, tc.lan, got, tc.want)
+		}
+	}
+}
