@@ -7,6 +7,7 @@
 // This module builds its own screen and banner, so index.html needs none.
 
 import * as db from "./db.js";
+import { fetchJSON } from "./sync.js";
 
 // codeFromAddress takes a join code from the address (#join=CODE) and
 // removes it from the address bar and history: it works only once.
@@ -32,21 +33,19 @@ export async function hasToken() {
 // join trades a code for this phone's token and returns the server's
 // answer (the study and role it is enrolled for).
 export async function join(code, deviceName) {
-  const res = await fetch("/api/v1/join", {
-    method: "POST",
-    cache: "no-store",
-    headers: { "Content-Type": "application/json", Accept: "application/json" },
-    body: JSON.stringify({ code, device: deviceName }),
-  });
-  let body = null;
+  let body;
   try {
-    body = await res.json();
-  } catch {
-    body = null;
+    body = await fetchJSON(
+      "/api/v1/join",
+      { method: "POST", headers: { "Content-Type": "application/json" }, body: JSON.stringify({ code, device: deviceName }) },
+      15000,
+      false,
+    );
+  } catch (e) {
+    if (e.name === "AbortError") throw new Error("the camp server did not answer in time; check the Wi-Fi and try again");
+    throw e;
   }
-  if (!res.ok || !body || !body.token) {
-    throw new Error(body && body.error ? body.error : `the camp server answered ${res.status}`);
-  }
+  if (!body || !body.token) throw new Error("the camp server gave no token; ask the coordinator for a new code");
   await db.setMeta("token", body.token);
   joins++;
   await db.setMeta("enrolled", { id: body.id, study: (body.studies || [])[0], role: body.role, label: body.label });

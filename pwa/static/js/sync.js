@@ -10,12 +10,16 @@ import { wireRevision, pickRevision, observeStamp, nextStamp, formatStamp } from
 const PUSH_BATCH = 200;
 const PULL_PAGE = 500;
 
-async function fetchJSON(url, options = {}, timeoutMs = 8000) {
+// fetchJSON asks the camp server and gives up after timeoutMs, so a server
+// that accepts the connection but never answers cannot leave a button
+// waiting for ever. withToken sends this phone's token (not when joining:
+// an old, revoked token must not be sent with a new code).
+export async function fetchJSON(url, options = {}, timeoutMs = 8000, withToken = true) {
   const ctrl = new AbortController();
   const timer = setTimeout(() => ctrl.abort(), timeoutMs);
   try {
     const headers = { Accept: "application/json", ...(options.headers || {}) };
-    const token = await db.getMeta("token");
+    const token = withToken ? await db.getMeta("token") : null;
     if (token) headers.Authorization = `Bearer ${token}`;
     const res = await fetch(url, { ...options, headers, signal: ctrl.signal, cache: "no-store" });
     const text = await res.text();
