@@ -76,9 +76,27 @@ func browserWithProfile(t *testing.T, profile string) context.Context {
 		chromedp.UserDataDir(profile),
 		chromedp.WindowSize(1280, 800),
 	}
-	actx, cancelA := chromedp.NewExecAllocator(context.Background(), opts...)
-	tctx, cancelT := context.WithTimeout(actx, 2*time.Minute)
-	ctx, cancelB := chromedp.NewContext(tctx)
+	// Reopening a profile right after its browser closed can fail while
+	// the old process still holds the profile's lock (seen on a loaded
+	// machine: "chrome failed to start"); give it a moment and try again.
+	var actx, tctx, ctx context.Context
+	var cancelA, cancelT, cancelB context.CancelFunc
+	for attempt := 1; ; attempt++ {
+		actx, cancelA = chromedp.NewExecAllocator(context.Background(), opts...)
+		tctx, cancelT = context.WithTimeout(actx, 2*time.Minute)
+		ctx, cancelB = chromedp.NewContext(tctx)
+		_, err := chromedp.Run(ctx, chromedp.Evaluate[bool]("true"))
+		if err == nil {
+			break
+		}
+		cancelB()
+		cancelT()
+		cancelA()
+		if attempt == 3 {
+			t.Fatalf("starting chromium (%d attempts): %v", attempt, err)
+		}
+		time.Sleep(time.Second)
+	}
 	var mu stdsync.Mutex
 	var pageErrors []string
 	if err := chromedp.Listen(ctx, func(ev any) {
