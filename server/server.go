@@ -52,16 +52,27 @@ func New(store *capture.Store, cfg Config) (*Server, error) {
 		Timeout: cfg.RequestTimeout,
 		Skipper: func(c echo.Context) bool { return c.Path() == backupPath || c.Path() == exportPath },
 	}))
-	for _, r := range s.routes() {
-		if r.need.name == "" {
-			// The zero rule would let anyone in: every route says what
-			// it needs.
-			return nil, fmt.Errorf("%w: route %s %s has no access rule", ErrConfig, r.method, r.path)
-		}
+	table := s.routes()
+	if err := checkRoutes(table); err != nil {
+		return nil, err
+	}
+	for _, r := range table {
 		e.Add(r.method, r.path, r.handler, s.guard(r))
 	}
 	s.echo = e
 	return s, nil
+}
+
+// checkRoutes refuses a route table with a row that says nothing about
+// access: the zero rule would let anyone in, so every route says what it
+// needs.
+func checkRoutes(table []route) error {
+	for _, r := range table {
+		if r.need.name == "" {
+			return fmt.Errorf("%w: route %s %s has no access rule", ErrConfig, r.method, r.path)
+		}
+	}
+	return nil
 }
 
 // Handler returns the server's HTTP handler, for tests and for mounting
