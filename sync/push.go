@@ -146,18 +146,16 @@ func decodeRevisionJSON(text []byte) (c *capture.Capture, revErr, bodyErr error)
 	return c, nil, nil
 }
 
-// span is where a revision is in a body, body[start:end], and which
-// "revisions" array (counted from 0) holds it.
-type span struct{ start, end, array int }
+// span is where a revision is in a body: body[start:end].
+type span struct{ start, end int }
 
 // splitPush reads the push object in body: it decodes "source" into
 // source, checks other members' values are valid JSON, and returns where
 // the elements of "revisions" are in body, unchecked (each is a whole
-// JSON value if it is valid JSON at all; decodeRun checks that).
+// JSON value if it is valid JSON at all; decodeRevisionJSON checks that).
 func splitPush(body []byte, source *string) ([]span, error) {
 	p := jsonSpan{b: body}
 	var raws []span
-	arrays := 0
 	if !p.eat('{') {
 		return nil, badPush("expected a JSON object")
 	}
@@ -173,7 +171,6 @@ func splitPush(body []byte, source *string) ([]span, error) {
 			}
 			switch k {
 			case "revisions":
-				arrays++
 				if p.eat('[') {
 					if !p.eat(']') {
 						for {
@@ -188,7 +185,7 @@ func splitPush(body []byte, source *string) ([]span, error) {
 							if _, ok := p.value(); !ok {
 								return nil, badPush("revision %d: unexpected end or character at byte %d", len(raws)+1, p.i)
 							}
-							raws = append(raws, span{start, p.i, arrays})
+							raws = append(raws, span{start, p.i})
 							if p.eat(',') {
 								continue
 							}
