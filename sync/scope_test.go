@@ -29,20 +29,24 @@ func TestRestrictRejectsOutOfScopeRevisions(t *testing.T) {
 
 func TestPullRequestKeeps(t *testing.T) {
 	for _, tc := range []struct {
-		req   PullRequest
-		study string
-		keep  bool
+		req      PullRequest
+		study    string
+		keep     bool
+		filtered bool // whether the pull must look at each revision's study
 	}{
-		{PullRequest{}, "a", true},
-		{PullRequest{Study: "a"}, "a", true},
-		{PullRequest{Study: "a"}, "b", false},
-		{PullRequest{Studies: []string{"a", "b"}}, "b", true},
-		{PullRequest{Studies: []string{"a"}}, "c", false},
-		{PullRequest{Studies: []string{}}, "a", false}, // an empty scope keeps nothing
-		{PullRequest{Study: "a", Studies: []string{"b"}}, "a", false},
+		{PullRequest{}, "a", true, false},
+		{PullRequest{Study: "a"}, "a", true, true},
+		{PullRequest{Study: "a"}, "b", false, true},
+		{PullRequest{Studies: []string{"a", "b"}}, "b", true, true},
+		{PullRequest{Studies: []string{"a"}}, "c", false, true},
+		{PullRequest{Studies: []string{}}, "a", false, true}, // an empty scope keeps nothing
+		{PullRequest{Study: "a", Studies: []string{"b"}}, "a", false, true},
 	} {
-		if got := tc.req.keeps(tc.study); got != tc.keep || (tc.req.filtered() != (tc.req.Study != "" || tc.req.Studies != nil)) {
+		if got := tc.req.keeps(tc.study); got != tc.keep {
 			t.Errorf("%+v keeps %q = %v, want %v", tc.req, tc.study, got, tc.keep)
+		}
+		if got := tc.req.filtered(); got != tc.filtered {
+			t.Errorf("%+v filtered() = %v, want %v", tc.req, got, tc.filtered)
 		}
 	}
 }
