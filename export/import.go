@@ -535,9 +535,7 @@ func ParseOutboxBackup(st *capture.Study, data []byte) ([]capture.Capture, *Repo
 		occFindings := capture.DeriveOccasion(st, &c)
 		fs, err := capture.ValidateCapture(st, &c)
 		fs = append(occFindings, fs...)
-		if !c.OccasionSetByHand {
-			c.Occasion = asSent
-		}
+		c.Occasion = asSent // DeriveOccasion leaves an occasion set by hand alone
 		var ve *capture.ValidationError
 		if errors.As(err, &ve) {
 			rep.Problems = append(rep.Problems, Problem{Row: i + 1, Column: ve.Field, Reason: ve.Message})
