@@ -109,7 +109,15 @@ func (a answer) errorBody(t *testing.T) errorBody {
 	return e
 }
 
+// do sends a request as the coordinator (the token of ts.Client()).
 func (ts *testServer) do(t *testing.T, method, path, body string) answer {
+	t.Helper()
+	return ts.send(t, ts.Client(), "", method, path, body)
+}
+
+// send sends a request with client, adding "Authorization: Bearer token"
+// when token is not "", and reads the whole answer.
+func (ts *testServer) send(t *testing.T, client *http.Client, token, method, path, body string) answer {
 	t.Helper()
 	var r io.Reader
 	if body != "" {
@@ -122,7 +130,10 @@ func (ts *testServer) do(t *testing.T, method, path, body string) answer {
 	if body != "" {
 		req.Header.Set("Content-Type", "application/json")
 	}
-	resp, err := ts.Client().Do(req)
+	if token != "" {
+		req.Header.Set("Authorization", "Bearer "+token)
+	}
+	resp, err := client.Do(req)
 	if err != nil {
 		t.Fatal(err)
 	}
