@@ -2,7 +2,6 @@ package access
 
 import (
 	"crypto/rand"
-	"errors"
 	"fmt"
 	"strings"
 	"time"
@@ -185,6 +184,7 @@ func (s *Service) redeem(key []byte, kind codeKind, mk func(storedCode) NewToken
 		return "", nil, err
 	}
 	now := s.now().UTC()
+	expired := false
 	err = s.store.Update(func(tx *capture.Tx) error {
 		b, err := tx.Bucket(bucketCodes)
 		if err != nil {
@@ -201,13 +201,14 @@ func (s *Service) redeem(key []byte, kind codeKind, mk func(storedCode) NewToken
 		if c.Kind != kind {
 			return ErrBadCode
 		}
-		// A used code is deleted; an expired one is deleted too, but the
-		// deletion must commit, so it is refused after the transaction.
+		// A used code is deleted; an expired one is deleted too, and the
+		// transaction commits that deletion before the code is refused.
 		if err := b.Delete(key); err != nil {
 			return err
 		}
 		if now.After(c.Expires) {
-			return errExpired
+			expired = true
+			return nil
 		}
 		n := mk(c)
 		if err := n.check(); err != nil {
@@ -216,15 +217,7 @@ func (s *Service) redeem(key []byte, kind codeKind, mk func(storedCode) NewToken
 		secret, tok, err = issue(tx, n, now)
 		return err
 	})
-	if errors.Is(err, errExpired) {
-		// Commit the deletion of the expired code, then refuse.
-		_ = s.store.Update(func(tx *capture.Tx) error {
-			b, err := tx.Bucket(bucketCodes)
-			if err != nil {
-				return err
-			}
-			return b.Delete(key)
-		})
+	if err == nil && expired {
 		return "", nil, fmt.Errorf("access: %s: %w: it expired", kind, ErrBadCode)
 	}
 	if err != nil {
@@ -233,4 +226,3 @@ func (s *Service) redeem(key []byte, kind codeKind, mk func(storedCode) NewToken
 	return secret, tok, nil
 }
 
-var errExpired = errors.New("expired")
