@@ -225,4 +225,3 @@ func (s *Service) redeem(key []byte, kind codeKind, mk func(storedCode) NewToken
 	}
 	return secret, tok, nil
 }
-
