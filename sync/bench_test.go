@@ -2,9 +2,11 @@ package sync
 
 import (
 	"bytes"
+	"encoding/binary"
 	"encoding/json"
 	"fmt"
 	"path/filepath"
+	"slices"
 	"testing"
 	"time"
 
@@ -243,4 +245,143 @@ func BenchmarkSync100k(b *testing.B) {
 	b.ReportMetric(storeRaw.Seconds()/merge.Seconds(), "merge/store")
 	b.ReportMetric(raw.Seconds()/storeRaw.Seconds(), "store/raw")
 	b.ReportMetric(raw2.Seconds()/remerge.Seconds(), "remerge/raw")
+}
+
+// floorData is what merging each benchmark record writes, encoded before
+// any timing with the encoders the merge uses: the capture record as the
+// capture store keeps it (JSON, keyed study 0x00 UUID) and its tag-index
+// entry (study 0x00 tag 0x00 UUID -> 12 bytes; the layout is documented on
+// capture.Store), and sync's revision, record state and feed entry.
+type floorData struct {
+	capKey, capVal, tagKey, revKey, revVal, recKey, recVal, feedVal [][]byte
+}
+
+func makeFloorData(b *testing.B, d *benchData) *floorData {
+	f := &floorData{}
+	for i, js := range d.js {
+		c := new(capture.Capture)
+		if err := json.Unmarshal(js, c); err != nil {
+			b.Fatal(err)
+		}
+		body, err := CanonicalBody(c)
+		if err != nil {
+			b.Fatal(err)
+		}
+		c.Revision.Depth = 1
+		capVal, err := json.Marshal(c)
+		if err != nil {
+			b.Fatal(err)
+		}
+		id := d.ids[i][:]
+		study := append([]byte(c.StudyID), 0)
+		f.capKey = append(f.capKey, append(slices.Clone(study), id...))
+		f.capVal = append(f.capVal, capVal)
+		f.tagKey = append(f.tagKey, append(append(append(slices.Clone(study), c.TagID...), 0), id...))
+		revKey, err := revisionKey(c.ID, c.Revision.ID)
+		if err != nil {
+			b.Fatal(err)
+		}
+		f.revKey = append(f.revKey, revKey)
+		f.revVal = append(f.revVal, encodeRevision(c, body))
+		f.recKey = append(f.recKey, id)
+		f.recVal = append(f.recVal, encodeRecordState(recordState{study: c.StudyID, leaves: []leaf{
+			{id: c.Revision.ID, depth: 1, stamp: c.Revision.Stamp, device: c.Revision.Device}}}))
+		f.feedVal = append(f.feedVal, encodeFeedEntry(feedEntry{captureID: c.ID, revID: c.Revision.ID, source: "phone-3"}))
+	}
+	return f
+}
+
+// floorInsert writes records [i, i+benchBatch) in one transaction doing
+// only the bbolt operations a merge of new revisions cannot avoid, with
+// every key and value already encoded: the capture store's part (look up
+// the existing record, put the record, put its tag-index entry) and, when
+// withSync is set, sync's part as well (look up the record state, put the
+// revision, the record state and a feed entry under the next sequence).
+func floorInsert(b *testing.B, db *bolt.DB, f *floorData, i int, withSync bool) time.Duration {
+	start := time.Now()
+	err := db.Update(func(tx *bolt.Tx) error {
+		bucket := func(name string, fill float64) *bolt.Bucket {
+			bk, err := tx.CreateBucketIfNotExists([]byte(name))
+			if err != nil {
+				b.Fatal(err)
+			}
+			bk.FillPercent = fill
+			return bk
+		}
+		// Fill factors as the store and sync set them.
+		caps, tags := bucket("captures", 0.9), bucket("tag_index", bolt.DefaultFillPercent)
+		revs, recs, feed := bucket("sync_revisions", 0.9), bucket("sync_records", 0.9), bucket("sync_feed", 0.9)
+		tagVal := make([]byte, 12)
+		for j := i; j < i+benchBatch; j++ {
+			if withSync && recs.Get(f.recKey[j]) != nil {
+				b.Fatal("record state exists")
+			}
+			if caps.Get(f.capKey[j]) != nil {
+				b.Fatal("record exists")
+			}
+			if err := caps.Put(f.capKey[j], f.capVal[j]); err != nil {
+				return err
+			}
+			if err := tags.Put(f.tagKey[j], tagVal); err != nil {
+				return err
+			}
+			if !withSync {
+				continue
+			}
+			if err := revs.Put(f.revKey[j], f.revVal[j]); err != nil {
+				return err
+			}
+			if err := recs.Put(f.recKey[j], f.recVal[j]); err != nil {
+				return err
+			}
+			seq, err := feed.NextSequence()
+			if err != nil {
+				return err
+			}
+			if err := feed.Put(binary.BigEndian.AppendUint64(nil, seq), f.feedVal[j]); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		b.Fatal(err)
+	}
+	return time.Since(start)
+}
+
+// BenchmarkWriteFloors measures how fast any merge of new revisions could
+// be with the present storage layout, as ratios to the raw insert of
+// BenchmarkSync100k in the same run (batches interleaved, as there):
+//
+//   - storefloor/raw: the capture store's own bbolt operations for each
+//     record (look-up, record, tag-index entry), values encoded in advance:
+//     no JSON encoding, no validation, no sync.
+//   - mergefloor/raw: the same plus sync's operations (record state
+//     look-up, revision, record state, feed entry), values encoded in
+//     advance: no decoding, hashing, merge rule or encoding.
+//
+// A merge that keeps the capture record and its tag index in the same
+// transaction as the revision (the design's rule: either all of it commits
+// or none) cannot be faster than storefloor; the present layout cannot be
+// faster than mergefloor.
+//
+//	go test ./sync -run '^$' -bench WriteFloors -benchtime 1x
+func BenchmarkWriteFloors(b *testing.B) {
+	d := makeBenchData(b)
+	f := makeFloorData(b, d)
+	var raw, store, merge time.Duration
+	for n := 0; n < b.N; n++ {
+		rdb, sdb, mdb := openRaw(b, "raw.db"), openRaw(b, "store.db"), openRaw(b, "merge.db")
+		for k := 0; k < benchRecords; k += benchBatch {
+			raw += rdb.insert(b, d, k)
+			store += floorInsert(b, sdb.db, f, k, false)
+			merge += floorInsert(b, mdb.db, f, k, true)
+		}
+		rdb.db.Close()
+		sdb.db.Close()
+		mdb.db.Close()
+	}
+	b.ReportMetric(raw.Seconds()/store.Seconds(), "storefloor/raw")
+	b.ReportMetric(raw.Seconds()/merge.Seconds(), "mergefloor/raw")
 }
