@@ -49,6 +49,7 @@ const (
 	CheckAgeBackwards    = "age_backwards"
 	CheckOutsideOccasion = "outside_occasions"
 	CheckUnknownStation  = "unknown_station"
+	CheckTagSeries       = "tag_outside_series"
 	CheckLikelyDuplicate = "likely_duplicate"
 	CheckMassRange       = "mass_out_of_range"
 	CheckNoStation       = "no_station"
@@ -98,6 +99,9 @@ var CheckKinds = []CheckKind{
 	{CheckUnknownStation, SeverityProblem, "Capture at a station the study does not have",
 		"Correct the station, or add the station to the study.",
 		true, "Spatial summaries and density cannot place the capture."},
+	{CheckTagSeries, SeverityProblem, "Tag that matches none of the study's tag series",
+		"Compare the tag with the animal in hand or the field sheet: a tag outside the study's series is usually a typing slip or a misread digit. Correct the tag, or add the series to the study if the tag really belongs to it.",
+		true, "The tag counts as an animal of its own: a mistyped recapture adds a false animal caught once, which pushes population estimates up."},
 	{CheckLikelyDuplicate, SeverityProblem, "Same animal entered twice on one occasion from different devices",
 		"Compare the records; if they are one capture entered twice, delete the extra one. If the animal really was caught twice, leave both.",
 		false, "A second capture on one occasion does not change the 0/1 capture history, but it inflates capture counts and mass summaries."},
@@ -174,6 +178,11 @@ func (s *Store) Checks(studyID string) ([]Check, error) {
 //   - outside_occasions: a record with a time in no occasion window (or a
 //     hand-set occasion the study does not have);
 //   - unknown_station: a station ID the study does not list;
+//   - tag_outside_series: a tag ID that matches none of the study's tag
+//     series (the study's own writes refuse such a tag, but records from
+//     phones and peers are stored as sent, see package sync, so this is
+//     where the coordinator sees them); the old tag of a retag may come
+//     from elsewhere and is not checked;
 //   - likely_duplicate: an animal with in-hand records (new mark,
 //     recapture, retag) on one occasion from two or more devices;
 //   - mass_out_of_range: a mass outside the study's range for the record's
@@ -204,6 +213,9 @@ func RunChecks(st *Study, caps []Capture) []Check {
 		return recs[a].ID < recs[b].ID
 	})
 	ck := &checker{st: st, stations: map[string]bool{}, occasions: map[int]bool{}}
+	if r, err := compileRules(st); err == nil {
+		ck.rules = r // a study that fails validation gets no tag-series check
+	}
 	for _, s := range st.Stations {
 		ck.stations[s.ID] = true
 	}
@@ -226,6 +238,7 @@ func RunChecks(st *Study, caps []Capture) []Check {
 
 type checker struct {
 	st        *Study
+	rules     *rules // nil when the study does not validate
 	stations  map[string]bool
 	occasions map[int]bool
 	out       []Check
@@ -325,6 +338,10 @@ func (ck *checker) perRecord(recs []*Capture) {
 		}
 		if c.StationID != "" && !ck.stations[c.StationID] {
 			ck.add(CheckUnknownStation, fmt.Sprintf("The record (%s) names station %q, which is not one of the study's %d stations.", describe(c), c.StationID, len(ck.st.Stations)), one, nil, nil, ck.occasionOf(c))
+		}
+		if ck.rules != nil && len(ck.rules.patterns) > 0 && !ck.rules.matchTag(c.TagID) {
+			ck.add(CheckTagSeries, fmt.Sprintf("The record (%s) has tag %q, which matches none of the study's tag series (%s).",
+				describe(c), c.TagID, ck.rules.seriesNames()), one, nil, nil, ck.occasionOf(c))
 		}
 		if c.StationID == "" && len(ck.st.Stations) > 0 && c.Event != EventResight && c.Event != EventDeadRecovery {
 			ck.add(CheckNoStation, fmt.Sprintf("The record (%s) names no station.", describe(c)), one, nil, nil, ck.occasionOf(c))

@@ -125,6 +125,21 @@ func TestRunChecksEachCheck(t *testing.T) {
 			{capture.CheckOutsideOccasion, []string{id(3)}, []string{"BF-0001"}},
 			{capture.CheckUnknownStation, []string{id(4)}, []string{"BF-0001"}},
 		}},
+		// The study's series is BF- and four digits (storetest.Study).
+		// Its own writes refuse other tags, but phones' records arrive by
+		// sync as sent: a digit dropped in typing makes a new "animal".
+		{"tag outside the study's series", []capture.Capture{
+			chk(1, "BF-0001", capture.EventNewMark, 1, 0, nil),
+			chk(2, "BF-001", capture.EventRecapture, 2, 0, nil),
+			// A retag's old tag may come from another study: not checked.
+			chk(3, "BF-0003", capture.EventNewMark, 1, 5, nil),
+			chk(4, "BF-0004", capture.EventRetag, 2, 5, retag("BF-0003")),
+			chk(5, "BF-0005", capture.EventRetag, 3, 5, retag("OLD-77")),
+		}, []found{
+			{capture.CheckNeverMarked, []string{id(2)}, []string{"BF-001"}},
+			{capture.CheckNeverMarked, []string{id(5)}, []string{"OLD-77", "BF-0005"}},
+			{capture.CheckTagSeries, []string{id(2)}, []string{"BF-001"}},
+		}},
 		{"hand-set occasion outside its window is not outside the study", []capture.Capture{
 			chk(1, "BF-0001", capture.EventNewMark, 1, 0, func(c *capture.Capture) {
 				c.CapturedAt = time.Date(2025, 6, 3, 12, 0, 0, 0, time.UTC)
@@ -264,8 +279,8 @@ func TestCheckKindsComplete(t *testing.T) {
 			t.Errorf("kind %s is incomplete: %+v", k.Code, k)
 		}
 	}
-	if len(seen) != 13 {
-		t.Errorf("%d kinds, want 13", len(seen))
+	if len(seen) != 14 {
+		t.Errorf("%d kinds, want 14", len(seen))
 	}
 }
 

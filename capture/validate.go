@@ -447,14 +447,19 @@ func (r *rules) checkTag(field, tag string) error {
 		return err
 	}
 	if len(r.patterns) > 0 && !r.matchTag(tag) {
-		names := make([]string, len(r.st.TagSeries))
-		for i, ts := range r.st.TagSeries {
-			names[i] = fmt.Sprintf("%s (%s)", ts.Name, ts.Pattern)
-		}
-		sort.Strings(names)
-		return invalid(field, "tag %q matches none of the study's tag series: %s", tag, strings.Join(names, ", "))
+		return invalid(field, "tag %q matches none of the study's tag series: %s", tag, r.seriesNames())
 	}
 	return nil
+}
+
+// seriesNames lists the study's tag series as "name (pattern)", sorted.
+func (r *rules) seriesNames() string {
+	names := make([]string, len(r.st.TagSeries))
+	for i, ts := range r.st.TagSeries {
+		names[i] = fmt.Sprintf("%s (%s)", ts.Name, ts.Pattern)
+	}
+	sort.Strings(names)
+	return strings.Join(names, ", ")
 }
 
 // checkTagText rejects empty tags, surrounding spaces and control
