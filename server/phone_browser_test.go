@@ -367,6 +367,10 @@ type entry struct {
 	event   string // tapped; "" keeps what the app chose from the tag
 	oldTag  string // for a retag
 	status  string // what the app must say about the tag: new, recapture, dead, unmarked
+	// offSeries: the tag matches none of the study's tag series
+	// (storetest.Study: BF- and four digits), which the app must point out
+	// under the status without refusing the record.
+	offSeries bool
 	species string // chosen on the species list; "" keeps the last one
 	station string // station ID chosen on the station list; "" keeps the last one
 	sex     string
@@ -389,6 +393,10 @@ func (p phone) record(e entry, n int) {
 		p.do(chromedp.SendKeys(chromedp.ID("tag"), e.tag))
 	}
 	p.wait(fmt.Sprintf(`document.getElementById("tag").value === %q && document.getElementById("tag-status").classList.contains(%q)`, e.tag, e.status))
+	warning := evalAs[string](p.page, `(document.querySelector("#tag-status .tag-warning") || {textContent: ""}).textContent`)
+	if e.offSeries != strings.Contains(warning, "does not match the study's tag format") {
+		p.t.Errorf("tag %s: the app warns %q; want a warning that it is outside the study's series: %v", e.tag, warning, e.offSeries)
+	}
 	if e.event != "" {
 		p.tap("event", e.event)
 	}
@@ -503,7 +511,8 @@ func (p phone) stored(storeName string) []phoneCapture {
 	})`, storeName))
 }
 
-// fieldDay is the 20 records of the offline test: 14 new marks, a
+// fieldDay is the 20 records of the offline test: 14 new marks (one with
+// a digit of its tag dropped, outside the study's tag series), a
 // recapture typed in full, one picked from the type-ahead by its digits, a
 // retag, a recapture of the new tag of the retagged animal, a resight and a
 // dead recovery.
@@ -519,6 +528,8 @@ var fieldDay = func() []entry {
 			e.station, e.species, e.age = "B2", "wood mouse", "juvenile"
 		case 11:
 			e.species = "bank vole"
+		case 13:
+			e.tag, e.offSeries = "BF-013", true // a digit dropped in typing
 		}
 		es = append(es, e)
 	}
@@ -629,6 +640,15 @@ func TestPhoneAppOfflineInBrowser(t *testing.T) {
 	}
 	mark("synced")
 	checkServerHolds(t, ps, onPhone)
+	// The mistyped tag was stored as sent; the coordinator's data checks
+	// list it.
+	checks, err := ps.store.Checks(ps.study.ID)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if i := slices.IndexFunc(checks, func(c capture.Check) bool { return c.Code == capture.CheckTagSeries }); i < 0 || !slices.Equal(checks[i].Tags, []string{"BF-013"}) {
+		t.Errorf("data checks after the sync: %+v; want tag_outside_series for BF-013", checks)
+	}
 	// The phone sent them with the token it joined with, kept through the
 	// closed browser and the server's restart: no second join, no refusal.
 	if devs := ps.deviceTokens(); len(devs) != 1 || devs[0].ID != phoneToken.ID || devs[0].Revoked != nil {
@@ -954,6 +974,17 @@ func TestPhoneCaptureScreenInBrowser(t *testing.T) {
 	p.wait(`!document.getElementById("editing-banner").hidden`)
 	lowest = min(lowest, p.checkLayout("record (editing)", 320, 360))
 	p.click("#cancel-edit")
+
+	// A tag outside the study's series: the warning is part of the screen
+	// the crew reads at the net.
+	p.click(`.tabs button[data-go="record"]`)
+	p.wait(`!document.getElementById("screen-record").hidden`)
+	p.do(chromedp.SendKeys(chromedp.ID("tag"), "BF-42"))
+	p.wait(`document.querySelector("#tag-status .tag-warning") !== null`)
+	lowest = min(lowest, p.checkLayout("record (tag outside the series)", 320, 360))
+	p.do(chromedp.Evaluate[chromedp.Void](`window.scrollTo(0, 0)`))
+	p.shot("phone-tag-warning-360x740.png", false)
+	p.erase("tag")
 
 	p.click(`.tabs button[data-go="outbox"]`)
 	p.wait(`!document.getElementById("screen-outbox").hidden`)

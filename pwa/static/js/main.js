@@ -5,7 +5,7 @@
 import * as db from "./db.js";
 import * as server from "./sync.js";
 import { enqueue } from "./outbox.js";
-import { buildTagIndex, lookupTag, suggestTags, eventFor, normaliseTag } from "./tags.js";
+import { buildTagIndex, lookupTag, suggestTags, eventFor, normaliseTag, tagProblems } from "./tags.js";
 import { uuidv7 } from "./uuid.js";
 import { nearestStations, formatWhen, formatLast } from "./view.js";
 import * as enrol from "./enrol.js";
@@ -356,7 +356,10 @@ function updateTagStatus(fromTyping) {
   box.textContent = "";
   if (!normaliseTag(typed)) return;
   const found = lookupTag(state.index, typed);
-  if (state.editing && found.last && found.last.id === state.editing.id) return;
+  if (state.editing && found.last && found.last.id === state.editing.id) {
+    appendTagWarning(box, typed);
+    return;
+  }
   const head = document.createElement("strong");
   box.classList.add(found.status);
   switch (found.status) {
@@ -377,6 +380,7 @@ function updateTagStatus(fromTyping) {
       box.append(head, document.createTextNode(`Last record: ${formatLast(found.last, state.study)}`));
       break;
   }
+  appendTagWarning(box, typed);
   if (fromTyping && !state.editing) {
     const ev = eventFor(found.status);
     const current = document.querySelector('input[name="event"]:checked');
@@ -384,6 +388,18 @@ function updateTagStatus(fromTyping) {
       document.querySelector(`input[name="event"][value="${ev}"]`).checked = true;
     }
   }
+}
+
+// appendTagWarning adds, below the tag's status, what the server will make
+// of the tag: a tag outside the study's series is saved, but is worth a
+// second look at the net while the animal is still in hand.
+function appendTagWarning(box, typed) {
+  const problem = tagProblems(typed, state.study && state.study.tag_series);
+  if (!problem.refuse && !problem.warn) return;
+  const p = document.createElement("p");
+  p.className = "tag-warning";
+  p.textContent = problem.refuse || problem.warn;
+  box.append(p);
 }
 
 function radio(name) {
@@ -401,10 +417,14 @@ function setRadio(name, value) {
 function readForm() {
   const tag = normaliseTag($("tag").value);
   if (!tag) throw fieldError("tag", "Enter the tag ID");
+  const refused = tagProblems(tag).refuse;
+  if (refused) throw fieldError("tag", refused);
   const event = radio("event");
   const oldTag = normaliseTag($("old-tag").value);
   if (event === "retag" && !oldTag) throw fieldError("old-tag", "Enter the old tag ID that this tag replaces");
   if (event === "retag" && oldTag === tag) throw fieldError("old-tag", "The old and new tag IDs are the same");
+  const oldRefused = event === "retag" && tagProblems(oldTag).refuse;
+  if (oldRefused) throw fieldError("old-tag", oldRefused.replace("The tag ID", "The old tag ID"));
   let species = $("species").value;
   if (species === "__other") species = $("species-other").value.trim();
   const massText = $("mass").value.trim().replace(",", ".");

@@ -84,3 +84,49 @@ export function eventFor(status) {
       return "new";
   }
 }
+
+// maxTagBytes is the longest tag ID the server accepts (in UTF-8 bytes),
+// as sync checks every pushed record.
+export const maxTagBytes = 128;
+
+// tagProblems checks a tag as the crew typed it, before the record is
+// saved:
+//   {refuse: reason}  the server would refuse the record (a tag longer than
+//                     maxTagBytes, or with a control character): the form
+//                     does not save it, so it never waits in the outbox;
+//   {warn: message}   the tag matches none of the study's tag series
+//                     (series: the study's tag_series, each {name, pattern}
+//                     with a pattern matched against the whole tag). The
+//                     record can still be saved and is sent as typed; the
+//                     coordinator's data checks list it.
+//   {}                nothing to say.
+// The patterns are the server's (Go) regular expressions; if one of them
+// is not valid JavaScript the phone cannot tell which tags match, and
+// gives no warning rather than a wrong one.
+export function tagProblems(tag, series) {
+  const t = normaliseTag(tag);
+  if (!t) return {};
+  const bytes = new TextEncoder().encode(t).length;
+  if (bytes > maxTagBytes) {
+    // Tags are letters and digits; an accented letter counts as two.
+    return { refuse: `The tag ID is too long: at most ${maxTagBytes} characters` };
+  }
+  // Control characters (C0, DEL, C1) and the replacement character, as
+  // the server refuses them.
+  if (/[\u0000-\u001f\u007f-\u009f\ufffd]/u.test(t)) {
+    return { refuse: "The tag ID has an invisible control character: clear the field and type it again" };
+  }
+  const list = Array.isArray(series) ? series.filter((s) => s && s.pattern) : [];
+  if (list.length === 0) return {};
+  const patterns = [];
+  for (const s of list) {
+    try {
+      patterns.push(new RegExp(`^(?:${s.pattern})$`, "u"));
+    } catch {
+      return {};
+    }
+  }
+  if (patterns.some((p) => p.test(t))) return {};
+  const names = list.map((s) => `${s.name || "tags"}: ${s.pattern}`).join("; ");
+  return { warn: `${t} does not match the study's tag format (${names}). Check the tag; you can still save the record.` };
+}
