@@ -90,6 +90,9 @@ const (
 	// FindingOldTagFormat: the old tag of a retag matches none of the
 	// study's tag series (it may come from another study or an old series).
 	FindingOldTagFormat = "old_tag_format"
+	// FindingTagFormat: the tag matches none of the study's tag series.
+	// Only ValidateSentCapture gives it; ValidateCapture refuses the tag.
+	FindingTagFormat = "tag_format"
 	// FindingNoStation: the study has stations but the record names none.
 	FindingNoStation = "no_station"
 )
@@ -109,6 +112,9 @@ type rules struct {
 	occasions map[int]*Occasion
 	species   map[string]bool
 	mass      map[string]MassRange
+	// seriesIsFinding: a tag outside the series is a finding, not a
+	// refusal (ValidateSentCapture).
+	seriesIsFinding bool
 }
 
 // compileRules validates the study and prepares it for checking captures.
@@ -313,6 +319,21 @@ func ValidateCapture(st *Study, c *Capture) (Findings, error) {
 	return r.check(c)
 }
 
+// ValidateSentCapture checks a record as another device sent it (a phone's
+// outbox backup) as ValidateCapture does, except that a tag outside the
+// study's tag series is a finding (FindingTagFormat), not a refusal: the
+// phone lets its crew save such a tag after a warning and sync stores it as
+// sent, so a backup of the same records must not be refused for it (the
+// data checks list it as tag_outside_series).
+func ValidateSentCapture(st *Study, c *Capture) (Findings, error) {
+	r, err := compileRules(st)
+	if err != nil {
+		return nil, fmt.Errorf("study %q: %w", st.ID, err)
+	}
+	r.seriesIsFinding = true
+	return r.check(c)
+}
+
 func (r *rules) check(c *Capture) (Findings, error) {
 	var fs Findings
 	if c == nil {
@@ -333,7 +354,15 @@ func (r *rules) check(c *Capture) (Findings, error) {
 	default:
 		return nil, invalid("event", "event %q is not one of new, recapture, resight, retag, dead", c.Event)
 	}
-	if err := r.checkTag("tag_id", c.TagID); err != nil {
+	if r.seriesIsFinding {
+		if err := checkTagText("tag_id", c.TagID); err != nil {
+			return nil, err
+		}
+		if len(r.patterns) > 0 && !r.matchTag(c.TagID) {
+			fs = append(fs, Finding{Code: FindingTagFormat, Field: "tag_id",
+				Message: fmt.Sprintf("tag %q matches none of the study's tag series: %s", c.TagID, r.seriesNames())})
+		}
+	} else if err := r.checkTag("tag_id", c.TagID); err != nil {
 		return nil, err
 	}
 	if c.Event == EventRetag {

@@ -17,73 +17,86 @@ func TestValidateCapture(t *testing.T) {
 		edit  func(c *capture.Capture)
 		field string // "" = accepted
 		code  string // a finding expected on an accepted record
+		// sent: the finding ValidateSentCapture gives instead of refusing;
+		// "" when it answers as ValidateCapture does.
+		sent string
 	}{
-		{"clean new mark", func(c *capture.Capture) {}, "", ""},
-		{"tag outside the series", func(c *capture.Capture) { c.TagID = "BF-12" }, "tag_id", ""},
-		{"tag matches only a substring", func(c *capture.Capture) { c.TagID = "xBF-1234" }, "tag_id", ""},
-		{"tag with trailing space", func(c *capture.Capture) { c.TagID = "BF-1234 " }, "tag_id", ""},
-		{"tag with a NUL byte", func(c *capture.Capture) { c.TagID = "BF-1\x0034" }, "tag_id", ""},
-		{"empty tag", func(c *capture.Capture) { c.TagID = "" }, "tag_id", ""},
-		{"not a UUID", func(c *capture.Capture) { c.ID = "abc" }, "id", ""},
-		{"another study", func(c *capture.Capture) { c.StudyID = "other" }, "study_id", ""},
-		{"no event", func(c *capture.Capture) { c.Event = "" }, "event", ""},
-		{"unknown event", func(c *capture.Capture) { c.Event = "escaped" }, "event", ""},
-		{"retag without old tag", func(c *capture.Capture) { c.Event = capture.EventRetag }, "old_tag_id", ""},
-		{"retag to the same tag", func(c *capture.Capture) { c.Event = capture.EventRetag; c.OldTagID = c.TagID }, "old_tag_id", ""},
-		{"retag from a foreign tag", func(c *capture.Capture) { c.Event = capture.EventRetag; c.OldTagID = "Z9" }, "", capture.FindingOldTagFormat},
-		{"old tag on a recapture", func(c *capture.Capture) { c.OldTagID = "BF-0001" }, "old_tag_id", ""},
-		{"unknown sex", func(c *capture.Capture) { c.Sex = "F" }, "sex", ""},
-		{"unknown age", func(c *capture.Capture) { c.Age = "old" }, "age", ""},
-		{"unknown fate", func(c *capture.Capture) { c.Fate = "escaped" }, "fate", ""},
-		{"dead recovery released", func(c *capture.Capture) { c.Event = capture.EventDeadRecovery }, "fate", ""},
-		{"no time", func(c *capture.Capture) { c.CapturedAt = time.Time{} }, "captured_at", ""},
-		{"occasion by hand outside the study", func(c *capture.Capture) { c.Occasion = 6; c.OccasionSetByHand = true }, "occasion", ""},
-		{"occasion by hand, time outside its window", func(c *capture.Capture) { c.Occasion = 3; c.OccasionSetByHand = true }, "", capture.FindingOutsideWindow},
-		{"unknown station", func(c *capture.Capture) { c.StationID = "Z9" }, "station_id", ""},
-		{"no station", func(c *capture.Capture) { c.StationID = "" }, "", capture.FindingNoStation},
-		{"latitude 90.5", func(c *capture.Capture) { c.Lat = fp(90.5) }, "lat", ""},
-		{"latitude -90 is fine", func(c *capture.Capture) { c.Lat = fp(-90) }, "", ""},
-		{"longitude 180.01", func(c *capture.Capture) { c.Lon = fp(180.01) }, "lon", ""},
-		{"longitude -180 is fine", func(c *capture.Capture) { c.Lon = fp(-180) }, "", ""},
-		{"latitude NaN", func(c *capture.Capture) { c.Lat = fp(math.NaN()) }, "lat", ""},
-		{"latitude without longitude", func(c *capture.Capture) { c.Lon = nil }, "lat", ""},
-		{"negative accuracy", func(c *capture.Capture) { c.AccuracyM = fp(-1) }, "accuracy_m", ""},
-		{"zero accuracy is fine", func(c *capture.Capture) { c.AccuracyM = fp(0) }, "", ""},
-		{"zero mass", func(c *capture.Capture) { c.MassG = fp(0) }, "mass_g", ""},
-		{"infinite mass", func(c *capture.Capture) { c.MassG = fp(math.Inf(1)) }, "mass_g", ""},
-		{"implausible mass", func(c *capture.Capture) { c.MassG = fp(80) }, "", capture.FindingMassRange},
-		{"other species", func(c *capture.Capture) { c.Species = "wood mouse" }, "", capture.FindingSpecies},
-		{"measurement without name", func(c *capture.Capture) { c.Measurements = []capture.Measurement{{Value: 1}} }, "measurements[0].name", ""},
-		{"measurement NaN", func(c *capture.Capture) { c.Measurements = []capture.Measurement{{Name: "ear", Value: math.NaN()}} }, "measurements[0].value", ""},
-		{"huge notes", func(c *capture.Capture) { c.Notes = strings.Repeat("x", 10001) }, "notes", ""},
+		{"clean new mark", func(c *capture.Capture) {}, "", "", ""},
+		{"tag outside the series", func(c *capture.Capture) { c.TagID = "BF-12" }, "tag_id", "", capture.FindingTagFormat},
+		{"tag matches only a substring", func(c *capture.Capture) { c.TagID = "xBF-1234" }, "tag_id", "", capture.FindingTagFormat},
+		{"tag with trailing space", func(c *capture.Capture) { c.TagID = "BF-1234 " }, "tag_id", "", ""},
+		{"tag with a NUL byte", func(c *capture.Capture) { c.TagID = "BF-1\x0034" }, "tag_id", "", ""},
+		{"empty tag", func(c *capture.Capture) { c.TagID = "" }, "tag_id", "", ""},
+		{"not a UUID", func(c *capture.Capture) { c.ID = "abc" }, "id", "", ""},
+		{"another study", func(c *capture.Capture) { c.StudyID = "other" }, "study_id", "", ""},
+		{"no event", func(c *capture.Capture) { c.Event = "" }, "event", "", ""},
+		{"unknown event", func(c *capture.Capture) { c.Event = "escaped" }, "event", "", ""},
+		{"retag without old tag", func(c *capture.Capture) { c.Event = capture.EventRetag }, "old_tag_id", "", ""},
+		{"retag to the same tag", func(c *capture.Capture) { c.Event = capture.EventRetag; c.OldTagID = c.TagID }, "old_tag_id", "", ""},
+		{"retag from a foreign tag", func(c *capture.Capture) { c.Event = capture.EventRetag; c.OldTagID = "Z9" }, "", capture.FindingOldTagFormat, ""},
+		{"old tag on a recapture", func(c *capture.Capture) { c.OldTagID = "BF-0001" }, "old_tag_id", "", ""},
+		{"unknown sex", func(c *capture.Capture) { c.Sex = "F" }, "sex", "", ""},
+		{"unknown age", func(c *capture.Capture) { c.Age = "old" }, "age", "", ""},
+		{"unknown fate", func(c *capture.Capture) { c.Fate = "escaped" }, "fate", "", ""},
+		{"dead recovery released", func(c *capture.Capture) { c.Event = capture.EventDeadRecovery }, "fate", "", ""},
+		{"no time", func(c *capture.Capture) { c.CapturedAt = time.Time{} }, "captured_at", "", ""},
+		{"occasion by hand outside the study", func(c *capture.Capture) { c.Occasion = 6; c.OccasionSetByHand = true }, "occasion", "", ""},
+		{"occasion by hand, time outside its window", func(c *capture.Capture) { c.Occasion = 3; c.OccasionSetByHand = true }, "", capture.FindingOutsideWindow, ""},
+		{"unknown station", func(c *capture.Capture) { c.StationID = "Z9" }, "station_id", "", ""},
+		{"no station", func(c *capture.Capture) { c.StationID = "" }, "", capture.FindingNoStation, ""},
+		{"latitude 90.5", func(c *capture.Capture) { c.Lat = fp(90.5) }, "lat", "", ""},
+		{"latitude -90 is fine", func(c *capture.Capture) { c.Lat = fp(-90) }, "", "", ""},
+		{"longitude 180.01", func(c *capture.Capture) { c.Lon = fp(180.01) }, "lon", "", ""},
+		{"longitude -180 is fine", func(c *capture.Capture) { c.Lon = fp(-180) }, "", "", ""},
+		{"latitude NaN", func(c *capture.Capture) { c.Lat = fp(math.NaN()) }, "lat", "", ""},
+		{"latitude without longitude", func(c *capture.Capture) { c.Lon = nil }, "lat", "", ""},
+		{"negative accuracy", func(c *capture.Capture) { c.AccuracyM = fp(-1) }, "accuracy_m", "", ""},
+		{"zero accuracy is fine", func(c *capture.Capture) { c.AccuracyM = fp(0) }, "", "", ""},
+		{"zero mass", func(c *capture.Capture) { c.MassG = fp(0) }, "mass_g", "", ""},
+		{"infinite mass", func(c *capture.Capture) { c.MassG = fp(math.Inf(1)) }, "mass_g", "", ""},
+		{"implausible mass", func(c *capture.Capture) { c.MassG = fp(80) }, "", capture.FindingMassRange, ""},
+		{"other species", func(c *capture.Capture) { c.Species = "wood mouse" }, "", capture.FindingSpecies, ""},
+		{"measurement without name", func(c *capture.Capture) { c.Measurements = []capture.Measurement{{Value: 1}} }, "measurements[0].name", "", ""},
+		{"measurement NaN", func(c *capture.Capture) { c.Measurements = []capture.Measurement{{Name: "ear", Value: math.NaN()}} }, "measurements[0].value", "", ""},
+		{"huge notes", func(c *capture.Capture) { c.Notes = strings.Repeat("x", 10001) }, "notes", "", ""},
 	}
 	st := storetest.Study()
 	for _, tc := range tests {
-		t.Run(tc.name, func(t *testing.T) {
-			c := newCapture("BF-1234", capture.EventRecapture, 2)
-			tc.edit(c)
-			capture.DeriveOccasion(st, c)
-			fs, err := capture.ValidateCapture(st, c)
-			if tc.field == "" {
-				if err != nil {
-					t.Fatalf("rejected: %v", err)
+		for _, sent := range []bool{false, true} {
+			name := tc.name
+			validate := capture.ValidateCapture
+			if sent {
+				name, validate = "as sent/"+name, capture.ValidateSentCapture
+				if tc.sent != "" {
+					tc.field, tc.code = "", tc.sent
 				}
-				if tc.code != "" && !fs.Has(tc.code) {
-					t.Errorf("finding %q missing: %+v", tc.code, fs)
+			}
+			t.Run(name, func(t *testing.T) {
+				c := newCapture("BF-1234", capture.EventRecapture, 2)
+				tc.edit(c)
+				capture.DeriveOccasion(st, c)
+				fs, err := validate(st, c)
+				if tc.field == "" {
+					if err != nil {
+						t.Fatalf("rejected: %v", err)
+					}
+					if tc.code != "" && !fs.Has(tc.code) {
+						t.Errorf("finding %q missing: %+v", tc.code, fs)
+					}
+					if tc.code == "" && len(fs) != 0 {
+						t.Errorf("unexpected findings: %+v", fs)
+					}
+					return
 				}
-				if tc.code == "" && len(fs) != 0 {
-					t.Errorf("unexpected findings: %+v", fs)
+				var ve *capture.ValidationError
+				if !errors.As(err, &ve) || !errors.Is(err, capture.ErrInvalid) {
+					t.Fatalf("got %v, want a ValidationError on %s", err, tc.field)
 				}
-				return
-			}
-			var ve *capture.ValidationError
-			if !errors.As(err, &ve) || !errors.Is(err, capture.ErrInvalid) {
-				t.Fatalf("got %v, want a ValidationError on %s", err, tc.field)
-			}
-			if ve.Field != tc.field || ve.Message == "" {
-				t.Errorf("rejected on field %q (%s), want %q", ve.Field, ve.Message, tc.field)
-			}
-		})
+				if ve.Field != tc.field || ve.Message == "" {
+					t.Errorf("rejected on field %q (%s), want %q", ve.Field, ve.Message, tc.field)
+				}
+			})
+		}
 	}
 }
 

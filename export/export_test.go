@@ -8,6 +8,7 @@ import (
 	"os"
 	"path/filepath"
 	"reflect"
+	"slices"
 	"strconv"
 	"strings"
 	"testing"
@@ -320,6 +321,34 @@ func TestPhoneOutboxBackupImports(t *testing.T) {
 	// body, hence the same revision, not a conflicting one.
 	if got[0].Occasion != 0 || got[0].OccasionSetByHand {
 		t.Errorf("imported backup record has occasion %d (set by hand %v), want it as the phone sent it (none)", got[0].Occasion, got[0].OccasionSetByHand)
+	}
+}
+
+// A phone lets its crew save a tag outside the study's series after a
+// warning, and its push of the record is stored as sent; the backup of the
+// same outbox is imported too, with the tag as a finding. Anything else
+// the study refuses still stops the import, and a table of older data with
+// the same tag is still refused (demo series: QH- and four digits).
+func TestPhoneOutboxBackupTagOutsideSeries(t *testing.T) {
+	_, st := demoStore(t)
+	backup := func(tag, station string) []byte {
+		return []byte(`{"kind":"tagtally outbox backup","device":"phone-1","study_id":"` + st.ID + `","records":[
+	 {"id":"0190f2a0-0000-7000-8000-000000000002","study_id":"` + st.ID + `","tag_id":"` + tag + `","event":"new","captured_at":"2026-05-14T06:30:00Z","station_id":"` + station + `"}]}`)
+	}
+	var got []capture.Capture
+	rep, err := Import(st, backup("QH-201", "A1"), Options{}, false, func(cs []capture.Capture) error { got = cs; return nil })
+	if err != nil || len(got) != 1 || got[0].TagID != "QH-201" {
+		t.Fatalf("backup with a tag outside the series: %v %+v %+v", err, rep, got)
+	}
+	if fs := rep.Findings[1]; !slices.ContainsFunc(fs, func(f capture.Finding) bool { return f.Code == capture.FindingTagFormat && f.Field == "tag_id" }) {
+		t.Errorf("findings %+v, want %s on tag_id", fs, capture.FindingTagFormat)
+	}
+	if rep, err := Import(st, backup("QH-0201", "Z9"), Options{}, false, func([]capture.Capture) error { t.Fatal("wrote a refused backup"); return nil }); !errors.Is(err, ErrProblems) || len(rep.Problems) != 1 || rep.Problems[0].Column != "station_id" {
+		t.Errorf("backup with an unknown station: %v %+v, want a problem in station_id", err, rep)
+	}
+	table := "tag,event,date,station\nQH-201,new,2026-05-14T06:30:00Z,A1\n"
+	if rep, err := Import(st, []byte(table), Options{}, false, func([]capture.Capture) error { t.Fatal("wrote a refused table"); return nil }); !errors.Is(err, ErrProblems) || len(rep.Problems) != 1 || rep.Problems[0].Column != "tag" {
+		t.Errorf("table with a tag outside the series: %v %+v, want a problem in its tag column", err, rep)
 	}
 }
 

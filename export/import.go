@@ -498,8 +498,10 @@ const OutboxKind = "tagtally outbox backup"
 
 // ParseOutboxBackup reads the backup file the phone app saves: a JSON
 // object with kind, device, study_id and the records waiting to be sent.
-// Each record is checked against the study like any imported row; Row in
-// a problem is the record's position in the file (1 = first).
+// Each record is checked against the study like any imported row, except
+// that a tag outside the study's tag series is a finding rather than a
+// problem (capture.ValidateSentCapture); Row in a problem is the record's
+// position in the file (1 = first).
 func ParseOutboxBackup(st *capture.Study, data []byte) ([]capture.Capture, *Report, error) {
 	var file struct {
 		Kind    string            `json:"kind"`
@@ -533,7 +535,9 @@ func ParseOutboxBackup(st *capture.Study, data []byte) ([]capture.Capture, *Repo
 		// would be a second, conflicting version of every record.
 		asSent := c.Occasion
 		occFindings := capture.DeriveOccasion(st, &c)
-		fs, err := capture.ValidateCapture(st, &c)
+		// As sent: a tag outside the study's series is a finding (the phone
+		// saved it after a warning, and its push would be stored as sent).
+		fs, err := capture.ValidateSentCapture(st, &c)
 		fs = append(occFindings, fs...)
 		c.Occasion = asSent // DeriveOccasion leaves an occasion set by hand alone
 		var ve *capture.ValidationError
