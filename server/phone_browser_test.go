@@ -349,7 +349,15 @@ func (p phone) waitServiceWorker() {
 	// Installing fetches and caches the whole shell; on a loaded 2-core
 	// machine (the full suite runs packages side by side) that was seen
 	// taking over 20 s, while the same test alone takes 2-4 s.
-	p.waitUpTo(`navigator.serviceWorker.controller !== null && navigator.serviceWorker.controller.state === "activated"`, time.Minute)
+	const controlled = `navigator.serviceWorker.controller !== null && navigator.serviceWorker.controller.state === "activated"`
+	if _, err := chromedp.Run(p.ctx, chromedp.Poll[bool](controlled, chromedp.WithPollingInterval(50*time.Millisecond), chromedp.WithPollingTimeout(time.Minute))); err != nil {
+		// Say what the browser did with the worker: never registered,
+		// still installing, or an install that failed (no worker left).
+		state := await[string](p, `navigator.serviceWorker.getRegistration().then((r) => r ? JSON.stringify({
+			installing: r.installing && r.installing.state, waiting: r.waiting && r.waiting.state, active: r.active && r.active.state,
+			controller: navigator.serviceWorker.controller && navigator.serviceWorker.controller.state }) : "no registration")`)
+		p.t.Fatalf("the service worker did not take control within a minute: %v; registration: %s\npage shows:\n%s", err, state, p.shows())
+	}
 	cached := await[[]string](p, `caches.keys()
 		.then((ks) => caches.open(ks.find((k) => k.startsWith("tagtally-shell-"))))
 		.then((c) => c.keys()).then((rs) => rs.map((r) => new URL(r.url).pathname))`)
@@ -371,22 +379,22 @@ func shellFiles(t *testing.T) []string {
 
 // entry is one capture as the crew enters it on the form.
 type entry struct {
-	tag     string
-	pick    string // typed instead of tag: the tag is then chosen from the type-ahead suggestions
-	event   string // tapped; "" keeps what the app chose from the tag
-	oldTag  string // for a retag
-	status  string // what the app must say about the tag: new, recapture, dead, unmarked
+	tag    string
+	pick   string // typed instead of tag: the tag is then chosen from the type-ahead suggestions
+	event  string // tapped; "" keeps what the app chose from the tag
+	oldTag string // for a retag
+	status string // what the app must say about the tag: new, recapture, dead, unmarked
 	// offSeries: the tag matches none of the study's tag series
 	// (storetest.Study: BF- and four digits), which the app must point out
 	// under the status without refusing the record.
 	offSeries bool
-	species string // chosen on the species list; "" keeps the last one
-	station string // station ID chosen on the station list; "" keeps the last one
-	sex     string
-	age     string
-	mass    string
-	foot    string // hind foot, mm
-	notes   string
+	species   string // chosen on the species list; "" keeps the last one
+	station   string // station ID chosen on the station list; "" keeps the last one
+	sex       string
+	age       string
+	mass      string
+	foot      string // hind foot, mm
+	notes     string
 }
 
 // record enters e through the form, saves it and waits until the outbox

@@ -3,6 +3,7 @@ package server
 import (
 	"fmt"
 	"slices"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
@@ -200,16 +201,50 @@ func TestPhoneSyncsByItselfEditsAndRefusalsInBrowser(t *testing.T) {
 		t.Errorf("the server's live records: %+v (%v), want only BF-0401", live, err)
 	}
 
-	// Round 3, in reach: a tag the server refuses although the form takes
-	// it. Sync stores pushed records without the study's field rules
-	// (sync/doc.go), so a tag outside the tag series is taken; what it
-	// refuses is a revision that would corrupt the store, such as a tag
-	// over 128 bytes. The form sets no length: here a tag reader in
-	// keyboard mode has typed its read 19 times without a break.
+	// Round 3: a tag the server refuses. Sync stores pushed records
+	// without the study's field rules (sync/doc.go), so a tag outside the
+	// tag series is taken; what it refuses is a revision that would
+	// corrupt the store, such as a tag over 128 bytes: here a tag reader
+	// in keyboard mode has typed its read 19 times without a break. The
+	// form refuses that tag at Save, so nothing waits in the outbox.
 	long := strings.Repeat("BF-0123", 19)
 	p.click(`.tabs button[data-go="record"]`)
 	p.wait(`!document.getElementById("screen-record").hidden`)
-	p.record(entry{tag: long, status: "new", sex: "female", mass: "19"}, 1)
+	p.do(chromedp.SendKeys(chromedp.ID("tag"), long))
+	p.wait(`document.getElementById("tag").value.length === ` + strconv.Itoa(len(long)))
+	p.click("#save")
+	p.wait(`document.getElementById("form-error").textContent.includes("too long")`)
+	if n := len(p.stored("outbox")); n != 0 {
+		t.Fatalf("the form saved a tag of %d characters: %d records in the outbox", len(long), n)
+	}
+	p.erase("tag")
+	// A phone updated from an earlier build may still hold such a record
+	// (the earlier form set no length): saved while the server is out of
+	// reach, then rewritten in the phone's database as that build saved
+	// it.
+	ps.stop()
+	p.awaitFailedAttempt(func() { p.record(entry{tag: "BF-0123", status: "new", sex: "female", mass: "19"}, 1) })
+	await[bool](p, `new Promise((resolve, reject) => {
+		const r = indexedDB.open("tagtally");
+		r.onerror = () => reject(r.error);
+		r.onsuccess = () => {
+			const tx = r.result.transaction(["outbox", "captures"], "readwrite");
+			for (const name of ["outbox", "captures"]) {
+				const store = tx.objectStore(name);
+				store.getAll().onsuccess = (ev) => {
+					for (const x of ev.target.result) {
+						if ((x.body || x).tag_id !== "BF-0123") continue;
+						(x.body || x).tag_id = "`+long+`";
+						store.put(x);
+					}
+				};
+			}
+			tx.oncomplete = () => { r.result.close(); resolve(true); };
+			tx.onerror = () => reject(tx.error);
+		};
+	})`)
+	ps.start()
+	evalAs[bool](p.page, `window.dispatchEvent(new Event("online"))`)
 	p.click(`.tabs button[data-go="outbox"]`)
 	p.wait(`document.getElementById("rejected-list").textContent.includes("refused")`)
 	mark("refused")
