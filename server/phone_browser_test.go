@@ -50,6 +50,9 @@ type phoneServer struct {
 	study *capture.Study
 	addr  string
 	stop  func() // nil while stopped
+	// failing, while set, is a path the server answers with 503 Service
+	// Unavailable, as a weak camp link loses a request now and then.
+	failing atomic.Pointer[string]
 }
 
 func newPhoneServer(t *testing.T) *phoneServer {
@@ -102,7 +105,15 @@ func (ps *phoneServer) start() {
 	}
 	ctx, cancel := context.WithCancel(context.Background())
 	done := make(chan error, 1)
-	go func() { done <- ps.srv.Serve(ctx, ln) }()
+	app := ps.srv.Handler()
+	h := http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		if f := ps.failing.Load(); f != nil && r.URL.Path == *f {
+			http.Error(w, "lost on the way", http.StatusServiceUnavailable)
+			return
+		}
+		app.ServeHTTP(w, r)
+	})
+	go func() { done <- ps.srv.ServeHandler(ctx, ln, h) }()
 	ps.stop = func() {
 		ps.stop = nil
 		cancel()
@@ -799,6 +810,56 @@ func checkServerHolds(t *testing.T, ps *phoneServer, onPhone []phoneCapture) {
 			t.Errorf("server holds %d %s records, want %d (all: %v)", events[ev], ev, n, events)
 		}
 	}
+}
+
+// TestPhoneAppRetriesOfflineSetupInBrowser follows a first visit on a weak
+// camp link: one file of the app does not arrive, so the browser drops the
+// service worker it was installing and the app could not open away from
+// the Wi-Fi. The app says so (a banner, and a line on the Outbox screen);
+// once the file arrives it sets itself up at its next contact with the
+// server, without being reopened, and says it is ready.
+func TestPhoneAppRetriesOfflineSetupInBrowser(t *testing.T) {
+	ps := newPhoneServer(t)
+	icon := "/icons/icon-512.png" // one of the files the worker keeps
+	ps.failing.Store(&icon)
+	p := openPhone(t, t.TempDir(), ps.url(), 360, 740, [2]float64{52.61, 1.35})
+	p.join(ps.joinCode(), "JW", true)
+	// The install fails and the browser keeps no worker.
+	for deadline := time.Now().Add(20 * time.Second); ; time.Sleep(100 * time.Millisecond) {
+		if await[bool](p, `navigator.serviceWorker.getRegistration().then((r) => !r)`) {
+			break
+		}
+		if time.Now().After(deadline) {
+			t.Fatal("the browser still has a service worker although one of its files never arrived")
+		}
+	}
+	if !evalAs[bool](p.page, `navigator.serviceWorker.controller === null && !document.getElementById("offline-banner").hidden`) {
+		t.Fatal("without a service worker the app does not say it is not ready to work with no network")
+	}
+	p.checkLayout("record (not ready offline)", 320, 360)
+	p.shot("phone-not-ready-360x740.png", false)
+	p.click(`.tabs button[data-go="outbox"]`)
+	p.wait(`!document.getElementById("screen-outbox").hidden`)
+	if got := p.text("#offline-state"); !strings.HasPrefix(got, "not yet") {
+		t.Errorf("the Outbox screen says %q for working with no network, want not yet", got)
+	}
+	// The link recovers; the next sync also sets the app up again.
+	ps.failing.Store(nil)
+	p.click("#sync-now")
+	p.waitServiceWorker()
+	p.wait(`document.getElementById("offline-banner").hidden && document.getElementById("offline-state").textContent.startsWith("yes")`)
+
+	// A page the active worker does not control (here a reload that
+	// bypasses it, as Shift+Reload does; in the field, a page that loaded
+	// while the worker was activating) is ready all the same, and asks
+	// the worker to take it over.
+	ignoreCache := true
+	if _, err := chromedp.Call(p.ctx, cdppage.Reload, cdppage.ReloadParams{IgnoreCache: &ignoreCache}); err != nil {
+		t.Fatal(err)
+	}
+	p.do(chromedp.WaitVisible(chromedp.ID("tag")))
+	p.waitServiceWorker()
+	p.wait(`document.getElementById("offline-banner").hidden`)
 }
 
 // TestPhoneAppInstallableInBrowser asks Chromium itself whether the app

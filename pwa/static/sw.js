@@ -39,6 +39,12 @@ self.addEventListener("activate", (event) => {
   );
 });
 
+// A page that loaded while this worker was activating missed the claim
+// above; it asks again (main.js, showOfflineState).
+self.addEventListener("message", (event) => {
+  if (event.data === "claim") event.waitUntil(self.clients.claim());
+});
+
 self.addEventListener("fetch", (event) => {
   const req = event.request;
   if (req.method !== "GET") return;

@@ -67,23 +67,60 @@ async function start() {
   setInterval(syncSoon, SYNC_EVERY_MS);
 }
 
-let registration = null;
+// The service worker keeps the app's files on the phone, which is what
+// lets the app open with no network. Until it controls the page the crew
+// is told plainly (offline-banner), so nobody walks out of Wi-Fi range
+// with an app that will not open there.
 function registerServiceWorker() {
-  if ("serviceWorker" in navigator) {
-    navigator.serviceWorker
-      .register("/sw.js")
-      .then((r) => (registration = r))
-      .catch((e) => console.warn("service worker not registered:", e));
+  if (!("serviceWorker" in navigator)) {
+    showOfflineState();
+    return;
   }
+  navigator.serviceWorker.addEventListener("controllerchange", showOfflineState);
+  navigator.serviceWorker.ready.then(showOfflineState);
+  navigator.serviceWorker
+    .register("/sw.js")
+    .catch((e) => console.warn("service worker not registered:", e))
+    .finally(showOfflineState);
+}
+
+// The app is ready to open with no network once the browser has an active
+// worker for it (it serves the next opening), whether or not this page is
+// controlled by it yet.
+async function showOfflineState() {
+  const supported = "serviceWorker" in navigator;
+  let ready = false;
+  if (supported) {
+    const r = await navigator.serviceWorker.getRegistration().catch(() => null);
+    ready = Boolean(r && r.active);
+    // A page that loaded while the worker was activating is left out of
+    // the worker's claim (it ran before the page could be claimed) and
+    // stays uncontrolled until reopened: ask the worker to claim it now.
+    if (r && r.active && !navigator.serviceWorker.controller) r.active.postMessage("claim");
+    if (r && r.installing) r.installing.addEventListener("statechange", showOfflineState, { once: true });
+  }
+  $("offline-banner").hidden = ready;
+  $("offline-state").textContent = ready
+    ? "yes: the app opens and records with no network"
+    : supported
+      ? "not yet: keep the app open on the camp Wi-Fi"
+      : "no: open the app from the camp server's https address (see its setup page)";
 }
 
 // checkForNewBuild asks the camp server for a newer service worker, that
 // is a newer build of the app. Browsers look for one when a page is
 // opened, but a crew may keep the app open all day, so it also asks
 // whenever it reaches the server; the new build takes over the next time
-// the app is opened.
+// the app is opened. If the first install failed (one file did not load
+// on a weak link), the browser has dropped the registration and would not
+// try again until the app is reopened: register it again now.
 function checkForNewBuild() {
-  if (registration) registration.update().catch(() => {});
+  if (!("serviceWorker" in navigator)) return;
+  navigator.serviceWorker
+    .getRegistration()
+    .then((r) => (r && (r.active || r.installing || r.waiting) ? r.update() : navigator.serviceWorker.register("/sw.js")))
+    .catch(() => {})
+    .finally(showOfflineState);
 }
 
 // ---------- storage safety ----------
