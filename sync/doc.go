@@ -86,8 +86,9 @@
 // BenchmarkWriteFloors measures the bound: with every key and value
 // encoded in advance, the capture store's operations alone run at about
 // 0.52-0.57 of a raw bbolt insert of the same records, and the whole
-// layout's at about 0.31-0.33; the real merge reaches about 0.21-0.23
-// (BenchmarkSync100k, merge/raw), two thirds of its layout's floor.
+// layout's at about 0.31-0.33; the real merge reached 0.15-0.24 in runs
+// on a shared 2-core machine (BenchmarkSync100k, merge/raw), roughly two
+// thirds of its layout's floor.
 //
 // Fault points for crash tests are described in fault.go.
 package sync
