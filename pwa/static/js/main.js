@@ -68,9 +68,9 @@ async function start() {
 }
 
 // The service worker keeps the app's files on the phone, which is what
-// lets the app open with no network. Until it controls the page the crew
-// is told plainly (offline-banner), so nobody walks out of Wi-Fi range
-// with an app that will not open there.
+// lets the app open with no network. Until the browser has an active
+// worker for the app the crew is told plainly (offline-banner), so nobody
+// walks out of Wi-Fi range with an app that will not open there.
 function registerServiceWorker() {
   if (!("serviceWorker" in navigator)) {
     showOfflineState();
