@@ -862,6 +862,29 @@ func TestPhoneAppRetriesOfflineSetupInBrowser(t *testing.T) {
 	p.wait(`document.getElementById("offline-banner").hidden`)
 }
 
+// TestPhoneAppWithoutServiceWorkerInBrowser opens the app where the
+// browser offers no service worker (as over plain HTTP from another
+// machine, e.g. a camp server run with --no-tls; here the browser's
+// serviceWorker is removed before the app's scripts run): the banner says
+// that waiting will not help and where to open the app instead.
+func TestPhoneAppWithoutServiceWorkerInBrowser(t *testing.T) {
+	ps := newPhoneServer(t)
+	p := openPhone(t, t.TempDir(), ps.url(), 360, 740, [2]float64{52.61, 1.35})
+	if _, err := chromedp.Call(p.ctx, cdppage.AddScriptToEvaluateOnNewDocument, cdppage.AddScriptToEvaluateOnNewDocumentParams{
+		Source: `delete Navigator.prototype.serviceWorker;`,
+	}); err != nil {
+		t.Fatal(err)
+	}
+	p.do(chromedp.Reload())
+	p.wait(`!("serviceWorker" in navigator) && !document.getElementById("offline-banner").hidden`)
+	if got := p.text("#offline-banner"); !strings.Contains(got, "https address") {
+		t.Errorf("the banner says %q, want where to open the app instead", got)
+	}
+	if got := evalAs[string](p.page, `document.getElementById("offline-state").textContent`); !strings.HasPrefix(got, "no:") {
+		t.Errorf("the Outbox line says %q, want no", got)
+	}
+}
+
 // TestPhoneAppInstallableInBrowser asks Chromium itself whether the app
 // can be installed to the home screen once its service worker runs: the
 // manifest must parse without errors and Page.getInstallabilityErrors

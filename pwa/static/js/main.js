@@ -100,6 +100,12 @@ async function showOfflineState() {
     if (r && r.installing) r.installing.addEventListener("statechange", showOfflineState, { once: true });
   }
   $("offline-banner").hidden = ready;
+  if (!supported) {
+    // Browsers keep an app for use offline only when it comes over HTTPS
+    // (or from the laptop itself): waiting will not help here.
+    $("offline-banner").textContent =
+      "This app cannot work without a network when opened at this address. Open it from the camp server's https address (ask the coordinator for the setup page).";
+  }
   $("offline-state").textContent = ready
     ? "yes: the app opens and records with no network"
     : supported
