@@ -91,7 +91,8 @@ const (
 	// study's tag series (it may come from another study or an old series).
 	FindingOldTagFormat = "old_tag_format"
 	// FindingTagFormat: the tag matches none of the study's tag series.
-	// Only ValidateSentCapture gives it; ValidateCapture refuses the tag.
+	// Only ValidateCaptureAll as sent gives it; ValidateCapture refuses
+	// the tag.
 	FindingTagFormat = "tag_format"
 	// FindingNoStation: the study has stations but the record names none.
 	FindingNoStation = "no_station"
@@ -113,7 +114,7 @@ type rules struct {
 	species   map[string]bool
 	mass      map[string]MassRange
 	// seriesIsFinding: a tag outside the series is a finding, not a
-	// refusal (ValidateSentCapture).
+	// refusal (ValidateCaptureAll as sent).
 	seriesIsFinding bool
 }
 
@@ -319,121 +320,144 @@ func ValidateCapture(st *Study, c *Capture) (Findings, error) {
 	return r.check(c)
 }
 
-// ValidateSentCapture checks a record as another device sent it (a phone's
-// outbox backup) as ValidateCapture does, except that a tag outside the
-// study's tag series is a finding (FindingTagFormat), not a refusal: the
-// phone lets its crew save such a tag after a warning and sync stores it as
-// sent, so a backup of the same records must not be refused for it (the
-// data checks list it as tag_outside_series).
-func ValidateSentCapture(st *Study, c *Capture) (Findings, error) {
+// ValidateCaptureAll is ValidateCapture reporting every rejected field
+// instead of the first, so that an import can list all of a row's problems
+// at once. The findings are nil when a field is rejected; the error is for
+// a study that does not validate.
+//
+// asSent checks a record as another device sent it (a phone's outbox
+// backup): a tag outside the study's tag series is then a finding
+// (FindingTagFormat), not a refusal, because the phone lets its crew save
+// such a tag after a warning and sync stores it as sent, so a backup of
+// the same records must not be refused for it (the data checks list it as
+// tag_outside_series).
+func ValidateCaptureAll(st *Study, c *Capture, asSent bool) (Findings, []*ValidationError, error) {
 	r, err := compileRules(st)
 	if err != nil {
-		return nil, fmt.Errorf("study %q: %w", st.ID, err)
+		return nil, nil, fmt.Errorf("study %q: %w", st.ID, err)
 	}
-	r.seriesIsFinding = true
-	return r.check(c)
+	r.seriesIsFinding = asSent
+	fs, errs := r.checkAll(c)
+	if len(errs) > 0 {
+		fs = nil
+	}
+	return fs, errs, nil
 }
 
+// check is checkAll reporting only the first rejected field, as
+// ValidateCapture does.
 func (r *rules) check(c *Capture) (Findings, error) {
-	var fs Findings
+	fs, errs := r.checkAll(c)
+	if len(errs) > 0 {
+		return nil, errs[0]
+	}
+	return fs, nil
+}
+
+// checkAll returns the findings and every rejected field, in the order
+// the fields are checked. The findings mean nothing when a field is
+// rejected.
+func (r *rules) checkAll(c *Capture) (fs Findings, errs []*ValidationError) {
 	if c == nil {
-		return nil, invalid("", "no capture given")
+		return nil, []*ValidationError{invalid("", "no capture given")}
+	}
+	bad := func(err error) {
+		var ve *ValidationError
+		if !errors.As(err, &ve) {
+			ve = invalid("", "%v", err)
+		}
+		errs = append(errs, ve)
 	}
 	if c.ID != "" {
 		if _, err := uuid.Parse(c.ID); err != nil {
-			return nil, invalid("id", "capture ID %q is not a UUID", c.ID)
+			bad(invalid("id", "capture ID %q is not a UUID", c.ID))
 		}
 	}
 	if c.StudyID != r.st.ID {
-		return nil, invalid("study_id", "the record names study %q but is being stored in study %q", c.StudyID, r.st.ID)
+		bad(invalid("study_id", "the record names study %q but is being stored in study %q", c.StudyID, r.st.ID))
 	}
 	switch c.Event {
 	case EventNewMark, EventRecapture, EventResight, EventRetag, EventDeadRecovery:
 	case "":
-		return nil, invalid("event", "say what happened: new, recapture, resight, retag or dead")
+		bad(invalid("event", "say what happened: new, recapture, resight, retag or dead"))
 	default:
-		return nil, invalid("event", "event %q is not one of new, recapture, resight, retag, dead", c.Event)
+		bad(invalid("event", "event %q is not one of new, recapture, resight, retag, dead", c.Event))
 	}
 	if r.seriesIsFinding {
 		if err := checkTagText("tag_id", c.TagID); err != nil {
-			return nil, err
+			bad(err)
 		}
 		if len(r.patterns) > 0 && !r.matchTag(c.TagID) {
 			fs = append(fs, Finding{Code: FindingTagFormat, Field: "tag_id",
 				Message: fmt.Sprintf("tag %q matches none of the study's tag series: %s", c.TagID, r.seriesNames())})
 		}
 	} else if err := r.checkTag("tag_id", c.TagID); err != nil {
-		return nil, err
+		bad(err)
 	}
 	if c.Event == EventRetag {
 		if c.OldTagID == "" {
-			return nil, invalid("old_tag_id", "a retag needs the old tag ID that was replaced")
-		}
-		if err := checkTagText("old_tag_id", c.OldTagID); err != nil {
-			return nil, err
-		}
-		if c.OldTagID == c.TagID {
-			return nil, invalid("old_tag_id", "the old tag ID is the same as the new one (%q); a retag replaces one tag with another", c.TagID)
-		}
-		if len(r.patterns) > 0 && !r.matchTag(c.OldTagID) {
+			bad(invalid("old_tag_id", "a retag needs the old tag ID that was replaced"))
+		} else if err := checkTagText("old_tag_id", c.OldTagID); err != nil {
+			bad(err)
+		} else if c.OldTagID == c.TagID {
+			bad(invalid("old_tag_id", "the old tag ID is the same as the new one (%q); a retag replaces one tag with another", c.TagID))
+		} else if len(r.patterns) > 0 && !r.matchTag(c.OldTagID) {
 			fs = append(fs, Finding{Code: FindingOldTagFormat, Field: "old_tag_id",
 				Message: fmt.Sprintf("old tag %q matches none of the study's tag series", c.OldTagID)})
 		}
 	} else if c.OldTagID != "" {
-		return nil, invalid("old_tag_id", "old_tag_id is only for retag events; this event is %q", c.Event)
+		bad(invalid("old_tag_id", "old_tag_id is only for retag events; this event is %q", c.Event))
 	}
 	switch c.Sex {
 	case "", SexFemale, SexMale, SexUnknown:
 	default:
-		return nil, invalid("sex", "sex %q is not one of female, male, unknown", c.Sex)
+		bad(invalid("sex", "sex %q is not one of female, male, unknown", c.Sex))
 	}
 	switch c.Age {
 	case "", AgeJuvenile, AgeSubadult, AgeAdult, AgeUnknown:
 	default:
-		return nil, invalid("age", "age class %q is not one of juvenile, subadult, adult, unknown", c.Age)
+		bad(invalid("age", "age class %q is not one of juvenile, subadult, adult, unknown", c.Age))
 	}
 	switch c.Fate {
 	case "", FateReleased, FateDied, FateRemoved:
 	default:
-		return nil, invalid("fate", "fate %q is not one of released, died, removed", c.Fate)
+		bad(invalid("fate", "fate %q is not one of released, died, removed", c.Fate))
 	}
 	if c.Event == EventDeadRecovery && c.Fate == FateReleased {
-		return nil, invalid("fate", "a dead recovery cannot have fate \"released\"; leave it empty or say died")
+		bad(invalid("fate", "a dead recovery cannot have fate \"released\"; leave it empty or say died"))
 	}
 	if c.CapturedAt.IsZero() {
-		return nil, invalid("captured_at", "the date and time of the capture is missing")
+		bad(invalid("captured_at", "the date and time of the capture is missing"))
 	}
 	if c.OccasionSetByHand {
 		o := r.occasions[c.Occasion]
 		if o == nil {
-			return nil, invalid("occasion", "occasion %d is not in the study (it has occasions 1 to %d)", c.Occasion, len(r.st.Occasions))
-		}
-		if !o.Start.IsZero() && (c.CapturedAt.Before(o.Start) || !c.CapturedAt.Before(o.End)) {
+			bad(invalid("occasion", "occasion %d is not in the study (it has occasions 1 to %d)", c.Occasion, len(r.st.Occasions)))
+		} else if !o.Start.IsZero() && (c.CapturedAt.Before(o.Start) || !c.CapturedAt.Before(o.End)) {
 			fs = append(fs, Finding{Code: FindingOutsideWindow, Field: "occasion",
 				Message: fmt.Sprintf("occasion %d was set by hand but %s is outside its window", c.Occasion, c.CapturedAt.Format(time.RFC3339))})
 		}
 	} else if c.Occasion != 0 && r.occasions[c.Occasion] == nil {
-		return nil, invalid("occasion", "occasion %d is not in the study (it has occasions 1 to %d)", c.Occasion, len(r.st.Occasions))
+		bad(invalid("occasion", "occasion %d is not in the study (it has occasions 1 to %d)", c.Occasion, len(r.st.Occasions)))
 	}
 	if c.StationID != "" {
 		if !r.stations[c.StationID] {
-			return nil, invalid("station_id", "station %q is not one of the study's stations", c.StationID)
+			bad(invalid("station_id", "station %q is not one of the study's stations", c.StationID))
 		}
 	} else if len(r.stations) > 0 && c.Event != EventResight && c.Event != EventDeadRecovery {
 		fs = append(fs, Finding{Code: FindingNoStation, Field: "station_id", Message: "no station given for a capture in a study with stations"})
 	}
 	if err := checkLatLon("", c.Lat, c.Lon); err != nil {
-		return nil, err
+		bad(err)
 	}
 	if c.AccuracyM != nil && (!finite(*c.AccuracyM) || *c.AccuracyM < 0) {
-		return nil, invalid("accuracy_m", "GPS accuracy must be 0 or more metres; got %v", *c.AccuracyM)
+		bad(invalid("accuracy_m", "GPS accuracy must be 0 or more metres; got %v", *c.AccuracyM))
 	}
 	if c.MassG != nil {
 		m := *c.MassG
 		if !finite(m) || m <= 0 {
-			return nil, invalid("mass_g", "mass must be more than 0 grams; got %v", m)
-		}
-		if mr, ok := r.mass[strings.ToLower(c.Species)]; ok && (m < mr.MinG || m > mr.MaxG) {
+			bad(invalid("mass_g", "mass must be more than 0 grams; got %v", m))
+		} else if mr, ok := r.mass[strings.ToLower(c.Species)]; ok && (m < mr.MinG || m > mr.MaxG) {
 			fs = append(fs, Finding{Code: FindingMassRange, Field: "mass_g",
 				Message: fmt.Sprintf("%v g is outside the plausible range %v-%v g for %s", m, mr.MinG, mr.MaxG, mr.Species)})
 		}
@@ -445,21 +469,20 @@ func (r *rules) check(c *Capture) (Findings, error) {
 	for i, m := range c.Measurements {
 		f := fmt.Sprintf("measurements[%d]", i)
 		if strings.TrimSpace(m.Name) == "" {
-			return nil, invalid(f+".name", "a measurement needs a name")
-		}
-		if !finite(m.Value) {
-			return nil, invalid(f+".value", "measurement %q must be a finite number", m.Name)
+			bad(invalid(f+".name", "a measurement needs a name"))
+		} else if !finite(m.Value) {
+			bad(invalid(f+".value", "measurement %q must be a finite number", m.Name))
 		}
 	}
 	for _, t := range []struct{ field, v string }{{"observer", c.Observer}, {"device", c.Device}, {"species", c.Species}, {"station_id", c.StationID}} {
 		if len(t.v) > maxIDLen {
-			return nil, invalid(t.field, "%s is longer than %d characters", t.field, maxIDLen)
+			bad(invalid(t.field, "%s is longer than %d characters", t.field, maxIDLen))
 		}
 	}
 	if len(c.Notes) > maxNotesLen {
-		return nil, invalid("notes", "notes are longer than %d characters", maxNotesLen)
+		bad(invalid("notes", "notes are longer than %d characters", maxNotesLen))
 	}
-	return fs, nil
+	return fs, errs
 }
 
 func (r *rules) matchTag(tag string) bool {

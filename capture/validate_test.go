@@ -3,6 +3,7 @@ package capture_test
 import (
 	"errors"
 	"math"
+	"slices"
 	"strings"
 	"testing"
 	"time"
@@ -17,8 +18,8 @@ func TestValidateCapture(t *testing.T) {
 		edit  func(c *capture.Capture)
 		field string // "" = accepted
 		code  string // a finding expected on an accepted record
-		// sent: the finding ValidateSentCapture gives instead of refusing;
-		// "" when it answers as ValidateCapture does.
+		// sent: the finding ValidateCaptureAll as sent gives instead of
+		// refusing; "" when it answers as ValidateCapture does.
 		sent string
 	}{
 		{"clean new mark", func(c *capture.Capture) {}, "", "", ""},
@@ -66,7 +67,7 @@ func TestValidateCapture(t *testing.T) {
 			name := tc.name
 			validate := capture.ValidateCapture
 			if sent {
-				name, validate = "as sent/"+name, capture.ValidateSentCapture
+				name, validate = "as sent/"+name, validateSent
 				if tc.sent != "" {
 					tc.field, tc.code = "", tc.sent
 				}
@@ -97,6 +98,48 @@ func TestValidateCapture(t *testing.T) {
 				}
 			})
 		}
+	}
+}
+
+// validateSent is ValidateCaptureAll as sent, answering as ValidateCapture
+// does (the first rejected field).
+func validateSent(st *capture.Study, c *capture.Capture) (capture.Findings, error) {
+	fs, errs, err := capture.ValidateCaptureAll(st, c, true)
+	if err != nil {
+		return nil, err
+	}
+	if len(errs) > 0 {
+		return nil, errs[0]
+	}
+	return fs, nil
+}
+
+// Every rejected field is reported, in the order ValidateCapture checks
+// them, the first being the one it reports.
+func TestValidateCaptureAllListsEveryField(t *testing.T) {
+	st := storetest.Study()
+	c := newCapture("BF-12", capture.EventRecapture, 2)
+	c.StationID, c.Sex, c.MassG = "Z9", "F", fp(-3)
+	capture.DeriveOccasion(st, c)
+	fs, errs, err := capture.ValidateCaptureAll(st, c, false)
+	if err != nil || fs != nil {
+		t.Fatalf("findings %+v, error %v", fs, err)
+	}
+	var fields []string
+	for _, e := range errs {
+		fields = append(fields, e.Field)
+	}
+	if want := []string{"tag_id", "sex", "station_id", "mass_g"}; !slices.Equal(fields, want) {
+		t.Errorf("rejected fields %v, want %v", fields, want)
+	}
+	if _, first := capture.ValidateCapture(st, c); first == nil || first.Error() != errs[0].Error() {
+		t.Errorf("ValidateCapture reports %v, want the first of ValidateCaptureAll: %v", first, errs[0])
+	}
+	// As sent, the tag outside the series is a finding and the others
+	// are still refused.
+	_, errs, _ = capture.ValidateCaptureAll(st, c, true)
+	if len(errs) != 3 || errs[0].Field != "sex" {
+		t.Errorf("as sent: %v, want sex, station_id and mass_g", errs)
 	}
 }
 

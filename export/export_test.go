@@ -352,6 +352,33 @@ func TestPhoneOutboxBackupTagOutsideSeries(t *testing.T) {
 	}
 }
 
+// A row with several problems lists all of them, so the file is corrected
+// in one round; a cell that does not parse is reported once, not again
+// as the empty field it leaves (demo study: QH- and four digits, stations
+// A1 to H8).
+func TestImportListsEveryProblemOfARow(t *testing.T) {
+	_, st := demoStore(t)
+	table := "tag,event,date,station,sex,mass\n" +
+		"QH-12,new,2026-06-10T06:10:00Z,Z9,female,abc\n" +
+		"QH-0001,recapture,yesterday,A1,female,21\n"
+	rep, err := Import(st, []byte(table), Options{}, false, func([]capture.Capture) error { t.Fatal("wrote a file with problems"); return nil })
+	if !errors.Is(err, ErrProblems) {
+		t.Fatalf("%v %+v", err, rep)
+	}
+	type where struct {
+		row    int
+		column string
+	}
+	var got []where
+	for _, p := range rep.Problems {
+		got = append(got, where{p.Row, p.Column})
+	}
+	want := []where{{2, "mass"}, {2, "tag"}, {2, "station"}, {3, "date"}}
+	if !slices.Equal(got, want) {
+		t.Errorf("problems at %v, want %v (%+v)", got, want, rep.Problems)
+	}
+}
+
 func FuzzReadTable(f *testing.F) {
 	f.Add([]byte("tag,date\nKV-1,2026-05-14\n"))
 	f.Add([]byte("\"a,b\",c\n1,2\n"))

@@ -213,18 +213,29 @@ func ParseCaptures(st *capture.Study, t *Table, opts Options) ([]capture.Capture
 	seen := map[string]int{}
 	for _, p := range rows {
 		c, probs, line, rec := p.c, p.probs, p.line, p.rec
-		if len(probs) == 0 {
-			capture.DeriveOccasion(st, &c)
-			fs, err := capture.ValidateCapture(st, &c)
-			var ve *capture.ValidationError
-			if errors.As(err, &ve) {
-				h := header[baseField(ve.Field)]
-				probs = append(probs, Problem{Row: line, Column: h, Value: cell(rec, col, baseField(ve.Field)), Reason: ve.Message})
-			} else if err != nil {
-				probs = append(probs, Problem{Row: line, Reason: err.Error()})
-			} else if len(fs) > 0 {
-				rep.Findings[line] = fs
+		// Every field is checked, so that all of a row's problems are
+		// listed at once. Where a cell did not parse, its field (left
+		// empty) is not reported again, nor are fields the file has no
+		// column for (an event inferred only for rows that parsed).
+		unparsed := map[string]bool{}
+		for _, pr := range probs {
+			unparsed[pr.Column] = true
+		}
+		capture.DeriveOccasion(st, &c)
+		fs, errs, err := capture.ValidateCaptureAll(st, &c, false)
+		if err != nil {
+			probs = append(probs, Problem{Row: line, Reason: err.Error()})
+		}
+		for _, ve := range errs {
+			f := baseField(ve.Field)
+			h, hasColumn := header[f]
+			if len(p.probs) > 0 && (!hasColumn || unparsed[h]) {
+				continue
 			}
+			probs = append(probs, Problem{Row: line, Column: h, Value: cell(rec, col, f), Reason: ve.Message})
+		}
+		if len(probs) == 0 && len(fs) > 0 {
+			rep.Findings[line] = fs
 		}
 		if len(probs) > 0 {
 			rep.Problems = append(rep.Problems, probs...)
@@ -500,7 +511,7 @@ const OutboxKind = "tagtally outbox backup"
 // object with kind, device, study_id and the records waiting to be sent.
 // Each record is checked against the study like any imported row, except
 // that a tag outside the study's tag series is a finding rather than a
-// problem (capture.ValidateSentCapture); Row in a problem is the record's
+// problem (capture.ValidateCaptureAll as sent); Row in a problem is the record's
 // position in the file (1 = first).
 func ParseOutboxBackup(st *capture.Study, data []byte) ([]capture.Capture, *Report, error) {
 	var file struct {
@@ -537,15 +548,17 @@ func ParseOutboxBackup(st *capture.Study, data []byte) ([]capture.Capture, *Repo
 		occFindings := capture.DeriveOccasion(st, &c)
 		// As sent: a tag outside the study's series is a finding (the phone
 		// saved it after a warning, and its push would be stored as sent).
-		fs, err := capture.ValidateSentCapture(st, &c)
+		fs, errs, err := capture.ValidateCaptureAll(st, &c, true)
 		fs = append(occFindings, fs...)
 		c.Occasion = asSent // DeriveOccasion leaves an occasion set by hand alone
-		var ve *capture.ValidationError
-		if errors.As(err, &ve) {
-			rep.Problems = append(rep.Problems, Problem{Row: i + 1, Column: ve.Field, Reason: ve.Message})
-			continue
-		} else if err != nil {
+		if err != nil {
 			rep.Problems = append(rep.Problems, Problem{Row: i + 1, Reason: err.Error()})
+			continue
+		}
+		for _, ve := range errs {
+			rep.Problems = append(rep.Problems, Problem{Row: i + 1, Column: ve.Field, Reason: ve.Message})
+		}
+		if len(errs) > 0 {
 			continue
 		}
 		if len(fs) > 0 {
