@@ -6,6 +6,7 @@ import (
 	"strconv"
 	"strings"
 	stdsync "sync"
+	"sync/atomic"
 
 	"github.com/labstack/echo/v4"
 
@@ -17,15 +18,17 @@ import (
 // syncState holds the sync engine of the server's store, opened on first
 // use (Open reads the replica ID and decides the feed epoch).
 type syncState struct {
-	once stdsync.Once
-	eng  *tsync.Engine
-	err  error
+	once   stdsync.Once
+	opened atomic.Bool // set once the once has begun opening the engine
+	eng    *tsync.Engine
+	err    error
 }
 
 // engine returns the sync engine. Pushes use the store's Batch, so
 // concurrent phones share commits (PERFORMANCE.md).
 func (s *Server) engine() (*tsync.Engine, error) {
 	s.sync.once.Do(func() {
+		s.sync.opened.Store(true)
 		s.sync.eng, s.sync.err = tsync.Open(s.store, &tsync.Options{Batch: true})
 		if s.sync.err != nil {
 			return
@@ -43,6 +46,20 @@ func (s *Server) engine() (*tsync.Engine, error) {
 		}
 	})
 	return s.sync.eng, s.sync.err
+}
+
+// CloseSync closes the sync engine if it was opened, which writes its
+// feed mark to disk (sync.Engine.Close). Call it after Serve has returned
+// and the scheduled peer sync has stopped, before closing the store.
+func (s *Server) CloseSync() error {
+	if !s.sync.opened.Load() {
+		return nil // never opened: nothing to close, and nothing to open now
+	}
+	eng, err := s.engine() // returns at once: opened means the once has run
+	if err != nil || eng == nil {
+		return nil // it failed to open: nothing to close
+	}
+	return eng.Close()
 }
 
 // SyncEngine returns the server's sync engine, for the scheduled peer sync

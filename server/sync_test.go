@@ -2,9 +2,12 @@ package server
 
 import (
 	"encoding/json"
+	"errors"
 	"fmt"
+	"io/fs"
 	"net/http"
 	"net/http/httptest"
+	"os"
 	"strings"
 	"testing"
 	"time"
@@ -250,5 +253,31 @@ func TestAPIEditThenStalePushIsConflict(t *testing.T) {
 	tj, _ := json.Marshal(tomb)
 	if a = ts.do(t, http.MethodPut, base+"/"+first.ID, string(tj)); a.status != http.StatusConflict {
 		t.Errorf("edit of a deletion = %d %s, want 409", a.status, a.raw)
+	}
+}
+
+// CloseSync closes the sync engine only if a request opened it: closing a
+// server that never synced must not open the engine now (opening versions
+// every record written without sync) nor leave a feed mark; after a sync
+// it writes the feed mark to disk, and a second call does nothing.
+func TestCloseSync(t *testing.T) {
+	ts := newTestServer(t, nil)
+	mark := ts.store.Path() + ".feedmark"
+	if err := ts.srv.CloseSync(); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := os.Stat(mark); !errors.Is(err, fs.ErrNotExist) {
+		t.Fatalf("closing a server that never synced left a feed mark (%v)", err)
+	}
+	if a := ts.do(t, http.MethodGet, "/api/v1/sync", ""); a.status != http.StatusOK {
+		t.Fatalf("GET /api/v1/sync: %d %s", a.status, a.raw)
+	}
+	for i := 0; i < 2; i++ {
+		if err := ts.srv.CloseSync(); err != nil {
+			t.Fatalf("close %d: %v", i+1, err)
+		}
+	}
+	if _, err := os.Stat(mark); err != nil {
+		t.Errorf("after a sync and CloseSync: %v, want the feed mark", err)
 	}
 }

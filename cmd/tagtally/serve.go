@@ -117,6 +117,13 @@ func serve(ctx context.Context, cfg config, withDemo bool, stdout io.Writer) (er
 	if err != nil {
 		return err
 	}
+	// After serving and the scheduled peer sync have stopped (deferred
+	// below, so run before this), before the store closes.
+	defer func() {
+		if cerr := srv.CloseSync(); cerr != nil && err == nil {
+			err = fmt.Errorf("closing sync: %w", cerr)
+		}
+	}()
 	stopPeerSync, err := cfg.Peer.start(ctx, srv)
 	if err != nil {
 		return err
