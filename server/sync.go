@@ -55,11 +55,13 @@ func (s *Server) CloseSync() error {
 	if !s.sync.opened.Load() {
 		return nil // never opened: nothing to close, and nothing to open now
 	}
-	eng, err := s.engine() // returns at once: opened means the once has run
-	if err != nil || eng == nil {
+	// Waits for an opening still under way. An engine whose Adopt failed
+	// is open all the same and is closed too.
+	_, _ = s.engine()
+	if s.sync.eng == nil {
 		return nil // it failed to open: nothing to close
 	}
-	return eng.Close()
+	return s.sync.eng.Close()
 }
 
 // SyncEngine returns the server's sync engine, for the scheduled peer sync
