@@ -339,7 +339,7 @@ func (ck *checker) perRecord(recs []*Capture) {
 		if c.StationID != "" && !ck.stations[c.StationID] {
 			ck.add(CheckUnknownStation, fmt.Sprintf("The record (%s) names station %q, which is not one of the study's %d stations.", describe(c), c.StationID, len(ck.st.Stations)), one, nil, nil, ck.occasionOf(c))
 		}
-		if ck.rules != nil && len(ck.rules.patterns) > 0 && !ck.rules.matchTag(c.TagID) {
+		if ck.rules != nil && ck.rules.outsideSeries(c.TagID) != "" {
 			ck.add(CheckTagSeries, fmt.Sprintf("The record (%s) has tag %q, which matches none of the study's tag series (%s).",
 				describe(c), c.TagID, ck.rules.seriesNames()), one, nil, nil, ck.occasionOf(c))
 		}

@@ -383,16 +383,14 @@ func (r *rules) checkAll(c *Capture) (fs Findings, errs []*ValidationError) {
 	default:
 		bad(invalid("event", "event %q is not one of new, recapture, resight, retag, dead", c.Event))
 	}
-	if r.seriesIsFinding {
-		if err := checkTagText("tag_id", c.TagID); err != nil {
-			bad(err)
-		}
-		if len(r.patterns) > 0 && !r.matchTag(c.TagID) {
-			fs = append(fs, Finding{Code: FindingTagFormat, Field: "tag_id",
-				Message: fmt.Sprintf("tag %q matches none of the study's tag series: %s", c.TagID, r.seriesNames())})
-		}
-	} else if err := r.checkTag("tag_id", c.TagID); err != nil {
+	if err := checkTagText("tag_id", c.TagID); err != nil {
 		bad(err)
+	} else if msg := r.outsideSeries(c.TagID); msg != "" {
+		if r.seriesIsFinding {
+			fs = append(fs, Finding{Code: FindingTagFormat, Field: "tag_id", Message: msg})
+		} else {
+			bad(invalid("tag_id", "%s", msg))
+		}
 	}
 	if c.Event == EventRetag {
 		if c.OldTagID == "" {
@@ -494,14 +492,13 @@ func (r *rules) matchTag(tag string) bool {
 	return false
 }
 
-func (r *rules) checkTag(field, tag string) error {
-	if err := checkTagText(field, tag); err != nil {
-		return err
+// outsideSeries says why tag matches none of the study's tag series, or
+// "" when it matches one (or the study has none).
+func (r *rules) outsideSeries(tag string) string {
+	if len(r.patterns) == 0 || r.matchTag(tag) {
+		return ""
 	}
-	if len(r.patterns) > 0 && !r.matchTag(tag) {
-		return invalid(field, "tag %q matches none of the study's tag series: %s", tag, r.seriesNames())
-	}
-	return nil
+	return fmt.Sprintf("tag %q matches none of the study's tag series: %s", tag, r.seriesNames())
 }
 
 // seriesNames lists the study's tag series as "name (pattern)", sorted.
