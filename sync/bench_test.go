@@ -87,21 +87,28 @@ func openRaw(b *testing.B, name string) *rawDB {
 // insert writes records [i, i+benchBatch) in one transaction and returns
 // how long it took.
 func (r *rawDB) insert(b *testing.B, d *benchData, i int) time.Duration {
-	start := time.Now()
-	err := r.db.Update(func(tx *bolt.Tx) error {
-		bk, err := tx.CreateBucketIfNotExists([]byte("captures"))
-		if err != nil {
-			return err
-		}
-		bk.FillPercent = 0.9
-		for j := i; j < i+benchBatch; j++ {
-			if err := bk.Put(d.ids[j][:], d.js[j]); err != nil {
+	return timed(b, func() error {
+		return r.db.Update(func(tx *bolt.Tx) error {
+			bk, err := tx.CreateBucketIfNotExists([]byte("captures"))
+			if err != nil {
 				return err
 			}
-		}
-		return nil
+			bk.FillPercent = 0.9
+			for j := i; j < i+benchBatch; j++ {
+				if err := bk.Put(d.ids[j][:], d.js[j]); err != nil {
+					return err
+				}
+			}
+			return nil
+		})
 	})
-	if err != nil {
+}
+
+// timed runs write (one bbolt transaction), failing the benchmark on an
+// error, and returns how long it took.
+func timed(b *testing.B, write func() error) time.Duration {
+	start := time.Now()
+	if err := write(); err != nil {
 		b.Fatal(err)
 	}
 	return time.Since(start)
@@ -131,19 +138,16 @@ func openStoreDB(b *testing.B, d *benchData) *storeDB {
 }
 
 func (sd *storeDB) insert(b *testing.B, i int) time.Duration {
-	start := time.Now()
-	err := sd.s.Update(func(tx *capture.Tx) error {
-		for j := i; j < i+benchBatch; j++ {
-			if err := tx.PutCaptureRaw(sd.recs[j]); err != nil {
-				return err
+	return timed(b, func() error {
+		return sd.s.Update(func(tx *capture.Tx) error {
+			for j := i; j < i+benchBatch; j++ {
+				if err := tx.PutCaptureRaw(sd.recs[j]); err != nil {
+					return err
+				}
 			}
-		}
-		return nil
+			return nil
+		})
 	})
-	if err != nil {
-		b.Fatal(err)
-	}
-	return time.Since(start)
 }
 
 // BenchmarkSync100k measures, in one run, for 100,000 new revisions pushed
@@ -298,56 +302,53 @@ func makeFloorData(b *testing.B, d *benchData) *floorData {
 // withSync is set, sync's part as well (look up the record state, put the
 // revision, the record state and a feed entry under the next sequence).
 func floorInsert(b *testing.B, db *bolt.DB, f *floorData, i int, withSync bool) time.Duration {
-	start := time.Now()
-	err := db.Update(func(tx *bolt.Tx) error {
-		bucket := func(name string, fill float64) *bolt.Bucket {
-			bk, err := tx.CreateBucketIfNotExists([]byte(name))
-			if err != nil {
-				b.Fatal(err)
+	return timed(b, func() error {
+		return db.Update(func(tx *bolt.Tx) error {
+			bucket := func(name string, fill float64) *bolt.Bucket {
+				bk, err := tx.CreateBucketIfNotExists([]byte(name))
+				if err != nil {
+					b.Fatal(err)
+				}
+				bk.FillPercent = fill
+				return bk
 			}
-			bk.FillPercent = fill
-			return bk
-		}
-		// Fill factors as the store and sync set them.
-		caps, tags := bucket("captures", 0.9), bucket("tag_index", bolt.DefaultFillPercent)
-		revs, recs, feed := bucket("sync_revisions", 0.9), bucket("sync_records", 0.9), bucket("sync_feed", 0.9)
-		tagVal := make([]byte, 12)
-		for j := i; j < i+benchBatch; j++ {
-			if withSync && recs.Get(f.recKey[j]) != nil {
-				b.Fatal("record state exists")
+			// Fill factors as the store and sync set them.
+			caps, tags := bucket("captures", 0.9), bucket("tag_index", bolt.DefaultFillPercent)
+			revs, recs, feed := bucket("sync_revisions", 0.9), bucket("sync_records", 0.9), bucket("sync_feed", 0.9)
+			tagVal := make([]byte, 12)
+			for j := i; j < i+benchBatch; j++ {
+				if withSync && recs.Get(f.recKey[j]) != nil {
+					b.Fatal("record state exists")
+				}
+				if caps.Get(f.capKey[j]) != nil {
+					b.Fatal("record exists")
+				}
+				if err := caps.Put(f.capKey[j], f.capVal[j]); err != nil {
+					return err
+				}
+				if err := tags.Put(f.tagKey[j], tagVal); err != nil {
+					return err
+				}
+				if !withSync {
+					continue
+				}
+				if err := revs.Put(f.revKey[j], f.revVal[j]); err != nil {
+					return err
+				}
+				if err := recs.Put(f.recKey[j], f.recVal[j]); err != nil {
+					return err
+				}
+				seq, err := feed.NextSequence()
+				if err != nil {
+					return err
+				}
+				if err := feed.Put(binary.BigEndian.AppendUint64(nil, seq), f.feedVal[j]); err != nil {
+					return err
+				}
 			}
-			if caps.Get(f.capKey[j]) != nil {
-				b.Fatal("record exists")
-			}
-			if err := caps.Put(f.capKey[j], f.capVal[j]); err != nil {
-				return err
-			}
-			if err := tags.Put(f.tagKey[j], tagVal); err != nil {
-				return err
-			}
-			if !withSync {
-				continue
-			}
-			if err := revs.Put(f.revKey[j], f.revVal[j]); err != nil {
-				return err
-			}
-			if err := recs.Put(f.recKey[j], f.recVal[j]); err != nil {
-				return err
-			}
-			seq, err := feed.NextSequence()
-			if err != nil {
-				return err
-			}
-			if err := feed.Put(binary.BigEndian.AppendUint64(nil, seq), f.feedVal[j]); err != nil {
-				return err
-			}
-		}
-		return nil
+			return nil
+		})
 	})
-	if err != nil {
-		b.Fatal(err)
-	}
-	return time.Since(start)
 }
 
 // BenchmarkWriteFloors measures how fast any merge of new revisions could
