@@ -39,7 +39,7 @@ export function open() {
       current = db;
       resolve(db);
     };
-    req.onerror = () => reject(req.error);
+    req.onerror = () => reject(storageError(req.error));
     req.onblocked = () => reject(new Error("the app is open in another tab with an older version; close it"));
   });
   return dbPromise;
@@ -67,18 +67,27 @@ async function transaction(stores, mode = "readonly", options) {
   }
 }
 
+// storageError is what a failed storage call rejects with: always an
+// Error. IndexedDB can report a failure with no error object (a request's
+// error reaches the transaction's onerror before the transaction's own
+// error is set, and the browser clearing storage aborts with none), and
+// callers read e.message and e.status.
+function storageError(err) {
+  return err || new Error("the phone's storage stopped this step (was the app's storage cleared?)");
+}
+
 function done(tx) {
   return new Promise((resolve, reject) => {
     tx.oncomplete = () => resolve();
-    tx.onerror = () => reject(tx.error);
-    tx.onabort = () => reject(tx.error || new Error("storage transaction aborted"));
+    tx.onerror = (ev) => reject(storageError(ev.target.error || tx.error));
+    tx.onabort = () => reject(storageError(tx.error));
   });
 }
 
 function result(req) {
   return new Promise((resolve, reject) => {
     req.onsuccess = () => resolve(req.result);
-    req.onerror = () => reject(req.error);
+    req.onerror = () => reject(storageError(req.error));
   });
 }
 
